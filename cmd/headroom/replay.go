@@ -1,0 +1,187 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/headroom-dev/headroom/forecast"
+	"github.com/headroom-dev/headroom/stream"
+)
+
+func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := flag.NewFlagSet("replay", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	var (
+		in, out, metric string
+		rf              ruleFlags
+		eng             engineFlags
+		set             = map[string]bool{}
+	)
+	fs.StringVar(&in, "in", "", "CSV file with header timestamp,value (timestamps: 'YYYY-MM-DD HH:MM:SS' UTC, RFC3339 or unix seconds)")
+	fs.StringVar(&out, "out", "-", "JSON Lines output file; - for standard output")
+	fs.StringVar(&metric, "metric", "", "metric name of the series (default: the file name without extension)")
+	rf.register(fs)
+	eng.register(fs, false)
+	fs.Usage = func() {
+		fmt.Fprintln(fs.Output(), "Usage: headroom replay --in FILE --out FILE --horizon DUR --every DUR [--threshold X --direction above|below] [--history DUR]\n\n"+
+			"Run the same engines as serve over a CSV file and write the records serve would publish:\n"+
+			"one forecast record per --every of the data's own clock, and every breach event.\n\nFlags:")
+		fs.PrintDefaults()
+	}
+	rf.set = set
+	if err := parse(fs, args, set); err != nil {
+		return err
+	}
+	if in == "" {
+		fmt.Fprintln(stderr, "replay needs --in")
+		return errUsage
+	}
+	if metric == "" {
+		metric = strings.TrimSuffix(filepath.Base(in), filepath.Ext(in))
+	}
+	rules, err := rf.rules()
+	if err != nil {
+		return err
+	}
+	f, err := os.Open(in)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	var w io.Writer = stdout
+	if out != "-" {
+		of, err := os.Create(out)
+		if err != nil {
+			return err
+		}
+		defer of.Close()
+		w = of
+	}
+	bw := bufio.NewWriterSize(w, 1<<16)
+	sink := &lineSink{enc: json.NewEncoder(bw)}
+	st, err := replay(ctx, f, metric, &eng, rules, rf.horizon, rf.engine, sink)
+	if ferr := bw.Flush(); err == nil {
+		err = ferr
+	}
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stderr, "replayed %d points (%d refused): %d forecast records, %d breach events\n", st.Points, st.Rejected, st.Forecasts, st.Breaches)
+	return sink.err
+}
+
+// replay feeds the CSV rows of one series to a Processor in file order.
+// Refused rows (late, non-finite) are counted and skipped, as serve does.
+func replay(ctx context.Context, r io.Reader, metric string, eng *engineFlags, rules []forecast.Rule, horizon time.Duration, engine string, sink stream.Emitter) (stream.Stats, error) {
+	store, err := eng.store()
+	if err != nil {
+		return stream.Stats{}, err
+	}
+	cfg := eng.config(rules, horizon, engine)
+	cfg.EveryRecord = true
+	proc, err := stream.NewProcessor(store, sink, cfg)
+	if err != nil {
+		return stream.Stats{}, err
+	}
+	w := proc.NewWorker()
+	err = readCSV(r, func(line int, ts int64, v float64) error {
+		if line%4096 == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
+		_ = w.Add(metric, nil, ts, v)
+		return nil
+	})
+	return proc.Stats(), err
+}
+
+// lineSink writes records as JSON Lines.
+type lineSink struct {
+	mu  sync.Mutex
+	enc *json.Encoder
+	err error
+}
+
+func (s *lineSink) write(v any) {
+	s.mu.Lock()
+	if err := s.enc.Encode(v); err != nil && s.err == nil {
+		s.err = err
+	}
+	s.mu.Unlock()
+}
+
+func (s *lineSink) Forecast(r *stream.ForecastRecord) { s.write(r) }
+func (s *lineSink) Breach(r *stream.BreachRecord)     { s.write(r) }
+func (s *lineSink) Reject(r *stream.RejectRecord)     { s.write(r) }
+
+// parseTime reads the CSV timestamp forms replay accepts and returns unix ms.
+func parseTime(s string) (int64, error) {
+	s = strings.TrimSpace(s)
+	if t, err := time.Parse("2006-01-02 15:04:05", s); err == nil {
+		return t.UnixMilli(), nil
+	}
+	if t, err := time.Parse(time.RFC3339Nano, s); err == nil {
+		return t.UnixMilli(), nil
+	}
+	if f, err := strconv.ParseFloat(s, 64); err == nil {
+		return int64(f * 1000), nil
+	}
+	return 0, fmt.Errorf("timestamp %q is neither 'YYYY-MM-DD HH:MM:SS', RFC3339 nor unix seconds", s)
+}
+
+// readCSV calls fn for every row of a timestamp,value CSV.
+func readCSV(r io.Reader, fn func(line int, ts int64, v float64) error) error {
+	cr := csv.NewReader(r)
+	cr.FieldsPerRecord = -1
+	cr.ReuseRecord = true
+	head, err := cr.Read()
+	if err != nil {
+		return fmt.Errorf("csv header: %w", err)
+	}
+	ti, vi := -1, -1
+	for i, h := range head {
+		switch strings.ToLower(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))) {
+		case "timestamp":
+			ti = i
+		case "value":
+			vi = i
+		}
+	}
+	if ti < 0 || vi < 0 {
+		return errors.New("csv header must name columns timestamp and value")
+	}
+	for line := 2; ; line++ {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return fmt.Errorf("csv line %d: %w", line, err)
+		}
+		if len(rec) <= max(ti, vi) {
+			return fmt.Errorf("csv line %d: too few columns", line)
+		}
+		ts, err := parseTime(rec[ti])
+		if err != nil {
+			return fmt.Errorf("csv line %d: %w", line, err)
+		}
+		v, err := strconv.ParseFloat(strings.TrimSpace(rec[vi]), 64)
+		if err != nil {
+			return fmt.Errorf("csv line %d: value: %w", line, err)
+		}
+		if err := fn(line, ts, v); err != nil {
+			return err
+		}
+	}
+}

@@ -1,0 +1,92 @@
+package forecast
+
+// This file holds the types engines, projections and rules share.
+
+import (
+	"time"
+
+	"github.com/headroom-dev/headroom/state"
+)
+
+// Engine fits a forecast to a history. Implementations are safe for
+// concurrent use; per-call scratch lives in the Scratch passed in.
+type Engine interface {
+	Name() string
+	// Fit fills f from v. It returns false when the history is too short or
+	// too sparse to say anything.
+	Fit(v *state.View, sc *Scratch, f *Forecast) bool
+}
+
+// Forecast is a fitted predictive distribution for one series, relative to
+// the view's End (the origin). Times are seconds after the origin.
+type Forecast struct {
+	Engine  string
+	Origin  int64   // unix ms
+	Level   float64 // fitted mean at the origin
+	Slope   float64 // per second
+	Since   int64   // unix ms: start of the current regime
+	Cycle   time.Duration
+	Support int     // composite points the fit rests on
+	Sigma   float64 // residual standard deviation of one observation
+	// Parameter uncertainty of the level and slope (variance, covariance),
+	// already scaled by Sigma².
+	VarLevel, CovLevelSlope, VarSlope float64
+	// Extra variance while the series is in transition between regimes.
+	Transition float64
+	// Scale of the lower and upper band relative to the symmetric normal
+	// band; 1 and 1 until calibration says otherwise.
+	ScaleLower, ScaleUpper float64
+}
+
+// Mean is the forecast mean dt seconds after the origin.
+func (f *Forecast) Mean(dt float64) float64 { return f.Level + f.Slope*dt }
+
+// Point is one forecast step.
+type Point struct {
+	T                int64 // unix ms
+	Mean             float64
+	Lower80, Upper80 float64
+	Lower95, Upper95 float64
+}
+
+// Direction says on which side of a threshold a breach lies.
+type Direction int8
+
+// Directions.
+const (
+	Above Direction = 1
+	Below Direction = -1
+)
+
+// Rule is one projected-breach rule.
+type Rule struct {
+	Name      string
+	Match     Matcher       // which series; the zero Matcher matches all
+	Threshold float64       //
+	Direction Direction     //
+	Horizon   time.Duration // how far ahead a breach counts
+	// Probability at or above which the projection holds (default 0.8), and
+	// below which an open incident starts to resolve (default 0.5).
+	OpenAt, CloseAt float64
+	// How long the projection must hold before an incident opens, and how
+	// long it must fail before the incident resolves (event time).
+	Confirm, Release time.Duration
+	Engine           string // engine override; empty chooses automatically
+}
+
+// Projection is the breach outlook of one forecast under one rule.
+type Projection struct {
+	Probability float64 // of crossing within the horizon
+	ETA         int64   // unix ms when the mean crosses; 0 if it does not within the search span
+	Early, Late int64   // unix ms when the upper / lower 80 % band crosses (for Above; swapped for Below); 0 if none
+}
+
+// EventState is the lifecycle step an event reports.
+type EventState string
+
+// Lifecycle states published on breach events.
+const (
+	Opened   EventState = "opened"
+	Updated  EventState = "updated"
+	Resolved EventState = "resolved"
+)

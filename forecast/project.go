@@ -1,0 +1,195 @@
+package forecast
+
+import "math"
+
+// Project computes the breach outlook of f under r.
+//
+// Probability is the largest probability, over the times dt in (0, horizon],
+// that an observation at dt lies beyond the threshold. It is found on a grid
+// of 32 steps refined by golden-section search, so it costs the same
+// whatever the history. ETA is when the mean crosses, solved exactly for the
+// straight-line mean. Early and Late are the first times the near and far
+// 80 % bounds reach the threshold (the upper and lower bound for Above, the
+// lower and upper for Below), from the roots of a quadratic. ETA, Early and
+// Late are searched up to four horizons ahead, are 0 when there is no
+// crossing in that span and the origin when already beyond.
+func Project(f *Forecast, r *Rule) Projection {
+	var p Projection
+	if f == nil || r == nil || (r.Direction != Above && r.Direction != Below) {
+		return p
+	}
+	h := r.Horizon
+	if h <= 0 {
+		h = DefaultHorizon
+	}
+	horizon := h.Seconds()
+	span := 4 * horizon
+	o := outlook{f: f, d: float64(r.Direction), th: r.Threshold}
+	p.Probability = o.probability(horizon)
+
+	// The mean: analytic.
+	switch gap := o.th - f.Level; {
+	case o.d*-gap >= 0:
+		p.ETA = f.Origin
+	case o.d*f.Slope > 0:
+		if dt := gap / f.Slope; dt <= span {
+			p.ETA = at(f.Origin, dt)
+		}
+	}
+	z := normQuantile(0.9)
+	near, far := z, -z // for Above the upper bound crosses first
+	if r.Direction == Below {
+		near, far = -z, z
+	}
+	if dt, ok := o.crossing(near, span); ok {
+		p.Early = at(f.Origin, dt)
+	}
+	if dt, ok := o.crossing(far, span); ok {
+		p.Late = at(f.Origin, dt)
+	}
+	return p
+}
+
+// at converts dt seconds after the origin to unix ms.
+func at(origin int64, dt float64) int64 {
+	return origin + int64(math.Round(dt*1000))
+}
+
+// outlook evaluates one forecast against one threshold.
+type outlook struct {
+	f  *Forecast
+	d  float64 // +1 above, -1 below
+	th float64
+}
+
+// margin is the signed distance of the mean beyond the threshold in
+// standard deviations of the side of the distribution the threshold is on:
+// normCDF(margin) is the probability of an observation beyond it.
+func (o *outlook) margin(dt float64) float64 {
+	m := o.f.Mean(dt)
+	sd := math.Sqrt(o.f.Var(dt)) * o.f.scale(o.th > m)
+	gap := o.d * (m - o.th)
+	if sd <= 0 || math.IsNaN(sd) {
+		switch {
+		case gap >= 0:
+			return math.Inf(1)
+		default:
+			return math.Inf(-1)
+		}
+	}
+	return gap / sd
+}
+
+// probability maximises the breach probability over [0, horizon].
+func (o *outlook) probability(horizon float64) float64 {
+	const steps = 32
+	best, bj := math.Inf(-1), 0
+	for j := 0; j <= steps; j++ {
+		if m := o.margin(horizon * float64(j) / steps); m > best {
+			best, bj = m, j
+		}
+	}
+	if math.IsInf(best, -1) {
+		return 0 // nothing comparable: NaN throughout
+	}
+	// Golden-section search around the best grid point; the margin is
+	// smooth, and between neighbouring grid points it has one maximum.
+	a := horizon * float64(max(bj-1, 0)) / steps
+	b := horizon * float64(min(bj+1, steps)) / steps
+	const g = 0.6180339887498949 // (√5−1)/2
+	c, d := b-g*(b-a), a+g*(b-a)
+	mc, md := o.margin(c), o.margin(d)
+	for range 40 {
+		if mc > md {
+			b, d, md = d, c, mc
+			c = b - g*(b-a)
+			mc = o.margin(c)
+		} else {
+			a, c, mc = c, d, md
+			d = a + g*(b-a)
+			md = o.margin(d)
+		}
+	}
+	for _, m := range [2]float64{mc, md} {
+		if m > best { // false for NaN, unlike max
+			best = m
+		}
+	}
+	return normCDF(best)
+}
+
+// crossing finds the first dt in [0, span] at which the bound
+// Mean + z·sd·scale lies at or beyond the threshold. The bound meets the
+// threshold where z²·scale²·Var(dt) = (threshold − Mean(dt))², a quadratic
+// in dt; its roots are candidates, checked against the bound itself.
+func (o *outlook) crossing(z, span float64) (float64, bool) {
+	f := o.f
+	beyond := func(dt float64) bool {
+		q := f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scale(z > 0)
+		return o.d*(q-o.th) >= 0
+	}
+	if beyond(0) {
+		return 0, true
+	}
+	zs := z * f.scale(z > 0)
+	z2 := zs * zs
+	c0, b := o.th-f.Level, f.Slope
+	A := f.Sigma*f.Sigma + f.VarLevel + f.Transition
+	alpha := z2*f.VarSlope - b*b
+	beta := 2*z2*f.CovLevelSlope + 2*c0*b
+	gamma := z2*A - c0*c0
+	r1, r2, n := quadRoots(alpha, beta, gamma)
+	roots := [2]float64{r1, r2}
+	for _, t := range roots[:n] {
+		if !(t > 0 && t <= span) {
+			continue
+		}
+		// A root of the squared equation is a crossing of this bound when
+		// the threshold lies on the bound's side of the mean there; allow
+		// for rounding by looking just past the root.
+		if beyond(t) {
+			return t, true
+		}
+		if u := t * (1 + 1e-9); u <= span && beyond(u) {
+			return u, true
+		}
+	}
+	// Rounding can hide a root; fall back to bisection if the end is beyond.
+	if !beyond(span) {
+		return 0, false
+	}
+	lo, hi := 0.0, span
+	for range 100 {
+		mid := (lo + hi) / 2
+		if beyond(mid) {
+			hi = mid
+		} else {
+			lo = mid
+		}
+	}
+	return hi, true
+}
+
+// quadRoots returns the real roots of a·t² + b·t + c = 0 in ascending
+// order, using the cancellation-free form of the quadratic formula.
+func quadRoots(a, b, c float64) (r1, r2 float64, n int) {
+	if a == 0 || math.Abs(a) < 1e-300 {
+		if b == 0 {
+			return 0, 0, 0
+		}
+		return -c / b, 0, 1
+	}
+	disc := b*b - 4*a*c
+	if disc < 0 || math.IsNaN(disc) {
+		return 0, 0, 0
+	}
+	q := -0.5 * (b + math.Copysign(math.Sqrt(disc), b))
+	if q == 0 {
+		return 0, 0, 1
+	}
+	r1, r2 = q/a, c/q
+	if r1 > r2 {
+		r1, r2 = r2, r1
+	}
+	return r1, r2, 2
+}

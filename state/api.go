@@ -1,0 +1,41 @@
+package state
+
+// This file holds the layout, the configuration and the errors of a Store.
+
+import (
+	"errors"
+	"time"
+)
+
+// Level is one bucket resolution.
+type Level struct {
+	Width time.Duration // bucket width
+	Count int           // buckets kept
+}
+
+// DefaultLayout keeps two hours of one-minute buckets, a day of fifteen-minute
+// buckets and two weeks of hourly buckets: 552 buckets per series.
+func DefaultLayout() []Level {
+	return []Level{
+		{Width: time.Minute, Count: 120},
+		{Width: 15 * time.Minute, Count: 96},
+		{Width: time.Hour, Count: 336},
+	}
+}
+
+// Config sizes a Store. Zero fields take the defaults.
+type Config struct {
+	Layout     []Level       // finest first; each width a multiple of the previous; default DefaultLayout()
+	Partitions int           // default 64
+	MaxSeries  int           // limit over all partitions; default 1,000,000
+	Lateness   time.Duration // how far behind its newest point a series accepts points; default one finest bucket; at most three
+	ChunkSize  int           // series per slab chunk allocated at once; default 1024
+}
+
+// Errors a point can be rejected with. Callers test them with errors.Is; the
+// returned errors wrap them with detail.
+var (
+	ErrLate      = errors.New("point older than the open buckets")
+	ErrValue     = errors.New("value is NaN or infinite")
+	ErrSeriesCap = errors.New("series limit reached")
+)

@@ -1,0 +1,149 @@
+package state
+
+import (
+	"fmt"
+	"runtime"
+	"sync/atomic"
+	"testing"
+)
+
+const benchSeries = 100_000
+
+// benchKeys makes n realistic canonical keys.
+func benchKeys(n int) []Key {
+	keys := make([]Key, n)
+	for i := range keys {
+		labels := []Label{
+			{Name: []byte("mode"), Value: []byte([]string{"idle", "user", "system", "iowait"}[i%4])},
+			{Name: []byte("host"), Value: fmt.Appendf(nil, "node-%05d.dc1", i/32)},
+			{Name: []byte("cpu"), Value: fmt.Append(nil, i/4%8)},
+		}
+		keys[i] = MakeKey(nil, []byte("node_cpu_seconds_total"), labels)
+	}
+	return keys
+}
+
+// BenchmarkAdd feeds points round-robin to live series, each on its own
+// clock at one point every 10 s (with a per-series phase), so that each
+// series closes a one-minute bucket every sixth point. ns/op is per point.
+// The 100,000-series case is the target; 1,000 series fit in cache and show
+// what the work costs without memory stalls.
+func BenchmarkAdd(b *testing.B) {
+	for _, n := range []int{benchSeries, 1000} {
+		b.Run(fmt.Sprint("series=", n), func(b *testing.B) {
+			keys := benchKeys(n)
+			s := newStore(b, Config{})
+			const step = 10 * sec
+			phase := func(j int) int64 { return int64(j) * 7919 % step }
+			for j, k := range keys {
+				mustAdd(b, s, k, t0+phase(j), 1)
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := range b.N {
+				j := i % n
+				r := int64(i/n) + 1
+				if err := s.Add(keys[j], t0+r*step+phase(j), float64(r%50), nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
+
+// BenchmarkAddParallel is BenchmarkAdd from GOMAXPROCS goroutines, each
+// owning every GOMAXPROCS-th series.
+func BenchmarkAddParallel(b *testing.B) {
+	keys := benchKeys(benchSeries)
+	s := newStore(b, Config{})
+	const step = 10 * sec
+	phase := func(j int) int64 { return int64(j) * 7919 % step }
+	for j, k := range keys {
+		mustAdd(b, s, k, t0+phase(j), 1)
+	}
+	var worker atomic.Int64
+	g := runtime.GOMAXPROCS(0)
+	b.ReportAllocs()
+	b.ResetTimer()
+	b.RunParallel(func(pb *testing.PB) {
+		w := int(worker.Add(1)-1) % g
+		i := 0
+		for pb.Next() {
+			j := w + (i%(benchSeries/g))*g
+			r := int64(i/(benchSeries/g)) + 1
+			if err := s.Add(keys[j], t0+r*step+phase(j), float64(r%50), nil); err != nil {
+				b.Error(err)
+				return
+			}
+			i++
+		}
+	})
+}
+
+// BenchmarkView copies 16 days of history of one series into a reused
+// View.
+func BenchmarkView(b *testing.B) {
+	s := newStore(b, Config{Partitions: 1})
+	k := testKey(`disk_used_bytes{host="a",mount="/"}`)
+	for ts := int64(t0); ts < t0+16*24*hour; ts += 10 * sec {
+		mustAdd(b, s, k, ts, 1e12+float64(ts%86_400_000))
+	}
+	var v View
+	fn := func(se *Series) { se.View(&v, 0) }
+	s.Do(k, fn)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for range b.N {
+		s.Do(k, fn)
+	}
+	b.ReportMetric(float64(v.Len()), "points")
+}
+
+// fillHistory gives a series points in every bucket of every ring ending at
+// end: hourly for two weeks, then every 15 minutes for a day, then every
+// minute for two hours.
+func fillHistory(tb testing.TB, s *Store, k Key, end int64) {
+	ts := end - 15*24*hour
+	for ; ts < end-25*hour; ts += hour {
+		mustAdd(tb, s, k, ts, 1)
+	}
+	for ; ts < end-3*hour; ts += 15 * minute {
+		mustAdd(tb, s, k, ts, 2)
+	}
+	for ; ts <= end; ts += minute {
+		mustAdd(tb, s, k, ts, 3)
+	}
+}
+
+// BenchmarkBytesPerSeries measures the heap taken by 100,000 series with
+// full history in the default configuration, index, key text and slab
+// slack included, after a GC. It feeds about 60 million points: run it
+// alone with -benchtime=1x.
+func BenchmarkBytesPerSeries(b *testing.B) {
+	keys := benchKeys(benchSeries)
+	var per float64
+	var s *Store
+	for range b.N {
+		s = nil
+		var before, after runtime.MemStats
+		runtime.GC()
+		runtime.ReadMemStats(&before)
+		s = newStore(b, Config{})
+		for _, k := range keys {
+			fillHistory(b, s, k, t0+20*24*hour)
+		}
+		runtime.GC()
+		runtime.ReadMemStats(&after)
+		per = float64(int64(after.HeapAlloc)-int64(before.HeapAlloc)) / benchSeries
+	}
+	if s.Len() != benchSeries {
+		b.Fatalf("%d series", s.Len())
+	}
+	var v View
+	s.Do(keys[0], func(se *Series) { se.View(&v, 0) })
+	if v.Len() < 500 {
+		b.Fatalf("history not full: %d composite points", v.Len())
+	}
+	b.ReportMetric(per, "B/series")
+	b.ReportMetric(float64(s.BytesPerSeries()), "designed-B/series")
+}

@@ -1,0 +1,73 @@
+package state_test
+
+import (
+	"fmt"
+	"time"
+
+	"github.com/headroom-dev/headroom/state"
+)
+
+func ExampleStore() {
+	store, err := state.New(state.Config{})
+	if err != nil {
+		panic(err)
+	}
+	labels := []state.Label{{Name: []byte("mount"), Value: []byte("/var")}, {Name: []byte("host"), Value: []byte("db1")}}
+	key := state.MakeKey(nil, []byte("disk_used_bytes"), labels)
+
+	// The first point opens its bucket and the one before (lateness is one
+	// bucket), so the first close, at 12:01, closes an empty bucket.
+	// Ten minutes of one point every 30 s, growing by 1 MB a minute.
+	start := time.Date(2024, 3, 1, 12, 0, 0, 0, time.UTC).UnixMilli()
+	closes := 0
+	for i := range 21 {
+		ts := start + int64(i)*30_000
+		v := 500e9 + float64(i)*0.5e6
+		if err := store.Add(key, ts, v, func(*state.Series) { closes++ }); err != nil {
+			fmt.Println(err)
+		}
+	}
+
+	var view state.View
+	store.Do(key, func(s *state.Series) { s.View(&view, 0) })
+	fmt.Println(view.Key)
+	fmt.Println("onClose calls:", closes, "- view ends", time.UnixMilli(view.End).UTC().Format("15:04"))
+	for i := range view.Len() {
+		fmt.Printf("t=%4.0fs mean=%.0f n=%d\n", view.T[i], view.Y[i], view.N[i])
+	}
+	// Output:
+	// disk_used_bytes{host="db1",mount="/var"}
+	// onClose calls: 10 - view ends 12:09
+	// t=-510s mean=500000250000 n=2
+	// t=-450s mean=500001250000 n=2
+	// t=-390s mean=500002250000 n=2
+	// t=-330s mean=500003250000 n=2
+	// t=-270s mean=500004250000 n=2
+	// t=-210s mean=500005250000 n=2
+	// t=-150s mean=500006250000 n=2
+	// t= -90s mean=500007250000 n=2
+	// t= -30s mean=500008250000 n=2
+}
+
+func ExampleSums_Fit() {
+	// A noisy line, x far from zero.
+	xs := []float64{1000, 1001, 1002, 1003, 1004}
+	ys := []float64{502.1, 502.4, 503.1, 503.4, 504.0}
+	s := state.Sums{X0: 1000} // sums about x = 1000 keep the digits
+	for i := range xs {
+		s.Add(xs[i], ys[i], 1)
+	}
+	line, ok := s.Fit()
+	fmt.Println(ok)
+	fmt.Printf("y = %.2f + %.2f x, residual SD %.3f, R² %.3f\n", line.Intercept, line.Slope, line.ResidualSD, line.R2)
+
+	// The same through prefix sums: any range in O(1).
+	var p state.Prefix
+	p.Build(xs, ys, nil)
+	tail, _ := p.Range(2, 5).Fit()
+	fmt.Printf("last three: slope %.2f\n", tail.Slope)
+	// Output:
+	// true
+	// y = 22.04 + 0.48 x, residual SD 0.110, R² 0.985
+	// last three: slope 0.45
+}

@@ -1,0 +1,44 @@
+package state
+
+// Phase is where a rule stands for one series in the alert lifecycle.
+type Phase uint8
+
+// Phases of the alert lifecycle.
+const (
+	Quiet   Phase = iota // nothing projected
+	Pending              // projected, not yet confirmed
+	Open                 // incident opened and not resolved
+	Closing              // open, projection no longer holds, not yet confirmed resolved
+)
+
+// Incident is the alert memory of one rule on one series. It lives in the
+// series so that it is snapshotted and restored with the statistics; the
+// lifecycle logic that drives it is in package forecast.
+type Incident struct {
+	Rule     uint16   // index of the rule in the rule set
+	Phase    Phase    //
+	ID       [16]byte // incident id (UUID bytes), stable while open
+	Since    int64    // unix ms: when the current phase began
+	Emitted  int64    // unix ms: last event published
+	Prob     float32  // probability in the last published event
+	ETA      int64    // unix ms: eta in the last published event
+	Opened   int64    // unix ms: when the incident opened
+	Threshed int64    // unix ms: first time the projection held in this episode
+}
+
+// Published remembers the last forecast record sent for a series, so the
+// publisher can skip records that carry no news.
+type Published struct {
+	At    int64   // unix ms
+	Mean  float32 // mean at the horizon
+	Upper float32 // upper 95 % bound at the horizon
+	Lower float32 // lower 95 % bound at the horizon
+}
+
+// Memo is what the pipeline remembers about a series between evaluations.
+type Memo struct {
+	Evaluated int64  // unix ms: origin of the last evaluation
+	Rules     uint64 // bitmask of the rules whose selector matches the series
+	RulesSet  bool   // Rules has been computed
+	Published Published
+}
