@@ -136,19 +136,17 @@ func TestSameRecordsWhateverBatching(t *testing.T) {
 }
 
 func filterF(rs []stream.ForecastRecord, host string) []stream.ForecastRecord {
-	var out []stream.ForecastRecord
-	for _, r := range rs {
-		if strings.Contains(r.Series, `host="`+host+`"`) {
-			out = append(out, r)
-		}
-	}
-	return out
+	return filter(rs, host, func(r stream.ForecastRecord) string { return r.Series })
 }
 
 func filterB(rs []stream.BreachRecord, host string) []stream.BreachRecord {
-	var out []stream.BreachRecord
+	return filter(rs, host, func(r stream.BreachRecord) string { return r.Series })
+}
+
+func filter[R any](rs []R, host string, series func(R) string) []R {
+	var out []R
 	for _, r := range rs {
-		if strings.Contains(r.Series, `host="`+host+`"`) {
+		if strings.Contains(series(r), `host="`+host+`"`) {
 			out = append(out, r)
 		}
 	}

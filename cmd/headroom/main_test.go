@@ -238,3 +238,30 @@ func (s *syncBuffer) String() string {
 	defer s.mu.Unlock()
 	return s.b.String()
 }
+
+// TestReplayCleanup replays the invented scenario in testdata: the incident
+// opens while the volume fills and resolves after the clean-up, with one
+// incident id throughout.
+func TestReplayCleanup(t *testing.T) {
+	var stdout, stderr bytes.Buffer
+	code := run(context.Background(), []string{"replay", "--in", filepath.Join("..", "..", "testdata", "volume-fill-cleanup.csv"),
+		"--out", "-", "--horizon", "6h", "--every", "5m", "--threshold", "0.9"}, &stdout, &stderr)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr.String())
+	}
+	var states []string
+	incidents := map[string]bool{}
+	for _, line := range strings.Split(strings.TrimSpace(stdout.String()), "\n") {
+		var r stream.BreachRecord
+		if err := json.Unmarshal([]byte(line), &r); err != nil {
+			t.Fatal(err)
+		}
+		if r.Kind == "breach" {
+			states = append(states, r.State)
+			incidents[r.Incident] = true
+		}
+	}
+	if len(states) < 2 || states[0] != "opened" || states[len(states)-1] != "resolved" || len(incidents) != 1 {
+		t.Errorf("breach states %v over %d incidents, want opened … resolved on one incident", states, len(incidents))
+	}
+}

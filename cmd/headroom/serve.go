@@ -142,7 +142,7 @@ func (sc *sidecar) run(ctx context.Context) error {
 	defer stopIngest()
 	errc := make(chan error, 1)
 	go func() { errc <- in.Run(ingestCtx) }()
-	<-ctx.Done()
+	sc.logStats(ctx, proc, store.Len)
 	stopIngest()
 	err = <-errc
 	// Flush what was published so consumers get every record before we go.
@@ -153,4 +153,25 @@ func (sc *sidecar) run(ctx context.Context) error {
 	sc.log.Info().Uint64("messages", st.Messages).Uint64("points", st.Points).Uint64("rejected", st.Rejected).
 		Uint64("forecasts", st.Forecasts).Uint64("breaches", st.Breaches).Int("series", store.Len()).Msg("stopped")
 	return err
+}
+
+// logStats logs the counters once a minute until ctx is done, so an
+// operator sees the rates without scraping anything.
+func (sc *sidecar) logStats(ctx context.Context, proc *stream.Processor, series func() int) {
+	t := time.NewTicker(time.Minute)
+	defer t.Stop()
+	prev, last := proc.Stats(), time.Now()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case now := <-t.C:
+			st := proc.Stats()
+			secs := now.Sub(last).Seconds()
+			sc.log.Info().Float64("points_per_s", float64(st.Points-prev.Points)/secs).
+				Uint64("rejected", st.Rejected-prev.Rejected).Uint64("forecasts", st.Forecasts-prev.Forecasts).
+				Uint64("breaches", st.Breaches-prev.Breaches).Int("series", series()).Msg("last minute")
+			prev, last = st, now
+		}
+	}
 }
