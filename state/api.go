@@ -39,3 +39,15 @@ var (
 	ErrValue     = errors.New("value is NaN or infinite")
 	ErrSeriesCap = errors.New("series limit reached")
 )
+
+// Entry is one point for AddBatch; Err is set when the point is refused.
+type Entry struct {
+	Key   Key
+	TS    int64 // unix ms
+	Value float64
+	Err   error
+}
+
+// ErrFull rejects a point whose finest bucket already holds 2^32-1 points
+// of its series.
+var ErrFull = errors.New("bucket holds as many points as it can")

@@ -51,6 +51,77 @@ func BenchmarkAdd(b *testing.B) {
 	}
 }
 
+// BenchmarkAddBatch is BenchmarkAdd through AddBatch, 128 points a batch;
+// ns/op is per point.
+func BenchmarkAddBatch(b *testing.B) {
+	for _, n := range []int{benchSeries, 1000} {
+		b.Run(fmt.Sprint("series=", n), func(b *testing.B) {
+			keys := benchKeys(n)
+			s := newStore(b, Config{})
+			const step = 10 * sec
+			phase := func(j int) int64 { return int64(j) * 7919 % step }
+			for j, k := range keys {
+				mustAdd(b, s, k, t0+phase(j), 1)
+			}
+			es := make([]Entry, 128)
+			j, r := 0, int64(1) // series and round of the next point
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i += len(es) {
+				batch := es[:min(len(es), b.N-i)]
+				for x := range batch {
+					batch[x] = Entry{Key: keys[j], TS: t0 + r*step + phase(j), Value: float64(r % 50)}
+					if j++; j == n {
+						j, r = 0, r+1
+					}
+				}
+				if got := s.AddBatch(batch, nil); got != len(batch) {
+					b.Fatalf("%d of %d applied: %v", got, len(batch), firstErr(batch))
+				}
+			}
+		})
+	}
+}
+
+func firstErr(es []Entry) error {
+	for _, e := range es {
+		if e.Err != nil {
+			return e.Err
+		}
+	}
+	return nil
+}
+
+// BenchmarkMakeKey builds the canonical text, FNV-1a hash and check hash
+// of a typical key with three labels; fnv-only is the same without the
+// check hash, for comparison.
+func BenchmarkMakeKey(b *testing.B) {
+	metric := []byte("node_cpu_seconds_total")
+	labels := []Label{
+		{Name: []byte("mode"), Value: []byte("idle")},
+		{Name: []byte("host"), Value: []byte("node-00042.dc1")},
+		{Name: []byte("cpu"), Value: []byte("3")},
+	}
+	buf := make([]byte, 0, 128)
+	b.Run("check", func(b *testing.B) {
+		var k Key
+		b.ReportAllocs()
+		for range b.N {
+			k = MakeKey(buf, metric, labels)
+		}
+		b.SetBytes(int64(len(k.Text)))
+	})
+	b.Run("fnv-only", func(b *testing.B) {
+		var k Key
+		b.ReportAllocs()
+		for range b.N {
+			text := AppendCanonical(buf[:0], metric, labels)
+			k = Key{Hash: Hash(text), Text: text}
+		}
+		b.SetBytes(int64(len(k.Text)))
+	})
+}
+
 // BenchmarkAddParallel is BenchmarkAdd from GOMAXPROCS goroutines, each
 // owning every GOMAXPROCS-th series.
 func BenchmarkAddParallel(b *testing.B) {
@@ -77,6 +148,45 @@ func BenchmarkAddParallel(b *testing.B) {
 			}
 			i++
 		}
+	})
+}
+
+// BenchmarkAddBatchParallel is BenchmarkAddParallel through AddBatch, 128
+// points a batch; ns/op is per point.
+func BenchmarkAddBatchParallel(b *testing.B) {
+	keys := benchKeys(benchSeries)
+	s := newStore(b, Config{})
+	const step = 10 * sec
+	phase := func(j int) int64 { return int64(j) * 7919 % step }
+	for j, k := range keys {
+		mustAdd(b, s, k, t0+phase(j), 1)
+	}
+	var worker atomic.Int64
+	g := runtime.GOMAXPROCS(0)
+	b.ReportAllocs()
+	b.ResetTimer()
+	b.RunParallel(func(pb *testing.PB) {
+		w := int(worker.Add(1)-1) % g
+		es := make([]Entry, 0, 128)
+		j, r := w, int64(1)
+		flush := func() bool {
+			if n := s.AddBatch(es, nil); n != len(es) {
+				b.Errorf("%d of %d applied: %v", n, len(es), firstErr(es))
+				return false
+			}
+			es = es[:0]
+			return true
+		}
+		for pb.Next() {
+			es = append(es, Entry{Key: keys[j], TS: t0 + r*step + phase(j), Value: float64(r % 50)})
+			if j += g; j >= benchSeries {
+				j, r = w, r+1
+			}
+			if len(es) == cap(es) && !flush() {
+				return
+			}
+		}
+		flush()
 	})
 }
 

@@ -12,81 +12,108 @@ import (
 // depends on that series' points alone, never on arrival order across
 // series or on batching.
 
-// reset prepares a fresh or reused slot for a new series whose first point
-// is at ts with value v.
-func (s *Series) reset(lay *layout, key string, hash uint64, ts int64, v float64) {
-	ch, row, incidents := s.ch, s.row, s.incidents[:0]
-	*s = Series{key: key, hash: hash, ch: ch, row: row, live: true, incidents: incidents}
-	s.clock = ts
-	s.base = v
-	s.first = floorDiv(ts-lay.late, lay.width[0])
-	_, count := s.rows()
-	clear(count) // reused memory: every bucket starts empty
+// reset makes the free slot in row the new series of k whose first point
+// is at ts with value v. Clearing the block also has the memory of a new
+// chunk faulted in when its series appear rather than at their first
+// closing bucket.
+func (c *chunk) reset(row int, k Key, ts int64, v float64) {
+	lay := c.lay
+	s := &c.series[row]
+	first := floorDiv(ts-lay.late, lay.width[0])
+	*s = Series{row: int32(row), live: true, ch: c, key: string(k.Text), born: first, incidents: s.incidents[:0]}
+	c.hot[row] = hot{hash: k.Hash, check: k.Check, clock: ts, first: first, base: v}
+	clear(c.extraOf(row))
+	clear(c.block(row)) // reused memory: every bucket starts empty
 }
 
-// add applies one point and reports whether finest buckets closed.
-func (s *Series) add(lay *layout, ts int64, v float64) (bool, error) {
+// add applies one point to the series in row and reports whether finest
+// buckets closed. The common point needs no division: the open buckets
+// are the few after first, told apart by comparing ts with their edges.
+func (c *chunk) add(row int, ts int64, v float64) (bool, error) {
+	lay := c.lay
+	h := &c.hot[row]
 	w0 := lay.width[0]
-	b := floorDiv(ts, w0)
-	if b < s.first {
-		start := s.first * w0
+	start := h.first * w0 // the oldest open bucket's
+	if ts < start {
 		return false, fmt.Errorf("%w: point at %d is %s before the oldest open bucket, which starts at %d (series clock %d)",
-			ErrLate, ts, span(start-ts), start, s.clock)
+			ErrLate, ts, span(start-ts), start, h.clock)
 	}
-	d := v - s.base
+	d := v - h.base
 	if math.IsInf(d, 0) {
-		return false, fmt.Errorf("%w: %v is too far from the series' first value %v", ErrValue, v, s.base)
+		return false, fmt.Errorf("%w: %v is too far from the series' first value %v", ErrValue, v, h.base)
 	}
-	closed := false
-	if ts > s.clock {
-		old := s.clock
-		s.clock = ts
-		if nf := floorDiv(ts-lay.late, w0); nf > s.first {
-			s.advance(lay, floorDiv(old, w0), nf)
-			closed = true
+	if ts <= h.clock || ts-lay.late < start+w0 {
+		// No bucket closes: ts lies in one of the few open buckets.
+		b := h.first
+		for e := start + w0; ts >= e; e += w0 {
+			b++
 		}
+		n, sum := c.slot(row, b)
+		if *n == math.MaxUint32 {
+			return false, errFull(ts)
+		}
+		h.clock = max(h.clock, ts)
+		*n++
+		*sum += d
+		return false, nil
 	}
-	o := &s.open[b&(openSlots-1)]
-	o.n++
-	o.sum += d
-	s.points++
-	return closed, nil
+	// Buckets close: ts-late has reached the end of the oldest.
+	newest := floorDiv(h.clock, w0)
+	b := floorDiv(ts, w0)
+	n, sum := c.slot(row, b)
+	if b <= newest && *n == math.MaxUint32 { // b is open already
+		return false, errFull(ts)
+	}
+	nf := floorDiv(ts-lay.late, w0)
+	c.advance(row, h.first, newest, nf)
+	h.first, h.clock = nf, ts
+	*n++ // b ≥ nf stays open; a slot that held a closed bucket is zero now
+	*sum += d
+	return true, nil
+}
+
+func errFull(ts int64) error {
+	return fmt.Errorf("%w: %d points already in the bucket of %d", ErrFull, uint32(math.MaxUint32), ts)
 }
 
 // rings is the closed-bucket memory of one series while buckets close:
-// its rows and, per level, the newest bucket the ring accounts for.
+// its levels and, per level, the newest bucket the ring accounts for.
 type rings struct {
-	lay   *layout
-	mean  []float32
-	count []uint16
-	head  [maxLevels]int64
+	lay  *layout
+	b    block
+	head [maxLevels]int64
 }
 
-// advance closes the finest buckets before nf; newest is the newest bucket
-// that was open. Closed buckets go to the finest ring and into the open
-// accumulator of every coarser level; a coarser bucket closes as soon as
-// all its finest buckets have, so every ring ends at the same instant when
-// the widths divide it.
-func (s *Series) advance(lay *layout, newest, nf int64) {
+// advance closes the finest buckets of the series in row from first up to
+// nf; newest is the newest bucket that was open. Closed buckets go to the
+// finest ring and into the open accumulator of every coarser level; a
+// coarser bucket closes as soon as all its finest buckets have, so every
+// ring ends at the same instant when the widths divide it. The caller
+// moves first to nf.
+func (c *chunk) advance(row int, first, newest, nf int64) {
+	lay := c.lay
 	w0 := lay.width[0]
-	r := rings{lay: lay}
-	r.mean, r.count = s.rows()
+	r := rings{lay: lay, b: c.block(row)}
+	hd := r.b.header()
 	// The open coarse accumulator holds the bucket right after its ring's
 	// head, unless a closing finest bucket moves it on.
 	var num [maxLevels]int64
 	for l := range lay.n {
-		r.head[l] = s.head(lay, l)
+		r.head[l] = head(lay, first, l)
 		num[l] = r.head[l] + 1
 	}
-	for c := s.first; c < nf && c <= newest; c++ {
-		o := &s.open[c&(openSlots-1)]
-		if o.n == 0 {
+	for bn := first; bn < nf && bn <= newest; bn++ {
+		pn, psum := c.slot(row, bn)
+		if *pn == 0 {
 			continue
 		}
-		r.put(0, c, *o)
+		o := acc{n: float64(*pn), sum: *psum}
+		*pn, *psum = 0, 0
+		r.put(0, bn, o)
+		hd.points += uint64(o.n)
 		for l := 1; l < lay.n; l++ {
-			ca := &s.coarse[l-1]
-			if n := floorDiv(c*w0, lay.width[l]); n != num[l] {
+			ca := &hd.coarse[l-1]
+			if n := floorDiv(bn*w0, lay.width[l]); n != num[l] {
 				if ca.n > 0 {
 					r.put(l, num[l], *ca)
 					*ca = acc{}
@@ -96,14 +123,11 @@ func (s *Series) advance(lay *layout, newest, nf int64) {
 			ca.n += o.n
 			ca.sum += o.sum
 		}
-		*o = acc{}
 	}
-	s.first = nf
-	s.closedAny = true
 	r.skip(0, nf-1)
 	for l := 1; l < lay.n; l++ {
-		done := s.head(lay, l) // newest coarse bucket now complete
-		if ca := &s.coarse[l-1]; ca.n > 0 && num[l] <= done {
+		done := head(lay, nf, l) // newest coarse bucket now complete
+		if ca := &hd.coarse[l-1]; ca.n > 0 && num[l] <= done {
 			r.put(l, num[l], *ca)
 			*ca = acc{}
 		}
@@ -115,9 +139,10 @@ func (s *Series) advance(lay *layout, newest, nf int64) {
 // anything the ring holds.
 func (r *rings) put(l int, num int64, a acc) {
 	r.skip(l, num-1)
-	i := r.lay.offset[l] + mod(num, r.lay.count[l])
-	r.mean[i] = toFloat32(a.sum / a.n)
-	r.count[i] = uint16(min(a.n, math.MaxUint16)) // saturates; the mean stays exact
+	ring := r.b.ring(r.lay, l)
+	m, n := ring.at(mod(num, r.lay.count[l]))
+	*m = toFloat32(a.sum / a.n)
+	*n = uint16(min(a.n, math.MaxUint16)) // saturates; the mean stays exact
 	r.head[l] = num
 }
 
@@ -129,14 +154,14 @@ func (r *rings) skip(l int, upto int64) {
 		return
 	}
 	r.head[l] = upto
-	off, n := r.lay.offset[l], r.lay.count[l]
-	ring := r.count[off : off+n]
+	n := r.lay.count[l]
 	if upto-from >= n {
-		clear(ring)
-		return
+		from = upto - n
 	}
-	for j := from + 1; j <= upto; j++ {
-		ring[mod(j, n)] = 0
+	ring := r.b.ring(r.lay, l)
+	for j, i := from+1, mod(from+1, n); j <= upto; j, i = j+1, next(i, n) {
+		_, c := ring.at(i)
+		*c = 0
 	}
 }
 

@@ -13,7 +13,7 @@ const (
 	maxChunkSize = 1 << 16 // series per chunk: the low 16 bits of a slot reference
 	maxChunks    = 1 << 15 // chunks per partition: the high 15 bits
 	openSlots    = 4       // finest buckets open at once: lateness ≤ 3 widths
-	growthChunks = 128     // bound on the chunks smaller than ChunkSize in a partition
+	growthChunks = 192     // bound on the chunks smaller than ChunkSize in a partition
 	firstChunk   = 16      // series in a partition's smallest chunks
 )
 
@@ -37,10 +37,13 @@ type layout struct {
 	levels  []Level
 	width   [maxLevels]int64 // ms
 	count   [maxLevels]int64
-	offset  [maxLevels]int64 // first bucket of each level in a series' slab row
-	n       int              // number of levels
-	buckets int              // buckets per series over all levels
-	late    int64            // lateness in ms
+	n       int   // number of levels
+	buckets int   // buckets per series over all levels
+	late    int64 // lateness in ms
+	slots   int   // open finest buckets a series needs: 2 up to one width of lateness, else 4
+	// Where a series' bucket memory lies in its block (see block.go).
+	blockBytes      int
+	meanAt, countAt [maxLevels]int // of levels 1 and up
 }
 
 // config is the validated Config.
@@ -70,7 +73,6 @@ func validate(cfg Config) (config, error) {
 		}
 		w := l.Width.Milliseconds()
 		lay.width[i], lay.count[i] = w, int64(l.Count)
-		lay.offset[i] = int64(lay.buckets)
 		lay.buckets += l.Count
 		if i == 0 {
 			continue
@@ -109,6 +111,12 @@ func validate(cfg Config) (config, error) {
 		return config{}, fmt.Errorf("state: lateness %v exceeds %d finest buckets", late, openSlots-1)
 	}
 	lay.late = late.Milliseconds()
+	lay.blockBytes = blockLayout(lay)
+	// The open buckets run from floor((clock-late)/w) to floor(clock/w).
+	lay.slots = 2
+	if lay.late > lay.width[0] {
+		lay.slots = openSlots
+	}
 
 	c := config{lay: lay, partitions: cfg.Partitions, maxSeries: cfg.MaxSeries, chunkSize: cfg.ChunkSize}
 	if c.partitions == 0 {
@@ -128,7 +136,7 @@ func validate(cfg Config) (config, error) {
 	case c.chunkSize < 1 || c.chunkSize > maxChunkSize:
 		return config{}, fmt.Errorf("state: chunk size %d outside [1, %d]", c.chunkSize, maxChunkSize)
 	}
-	if c.chunkSize*lay.buckets*(4+2) > maxChunkMem {
+	if c.chunkSize*lay.blockBytes > maxChunkMem {
 		return config{}, fmt.Errorf("state: chunk of %d series × %d buckets exceeds %d bytes", c.chunkSize, lay.buckets, maxChunkMem)
 	}
 	// One partition may hold every series if the hashes are skewed; its

@@ -15,4 +15,16 @@
 // bucket memory, sized in chunks once and reused, so many subscribers ingest
 // concurrently and several processes can later split the partitions between
 // them.
+//
+// The ingest path is laid out for the cache. Cache misses, not arithmetic,
+// set the cost of a point once series outnumber what the cache holds, so
+// what every point reads and writes (identity, clock, base and open
+// buckets) sits in a dense array of one-line hot records, a series' closed
+// buckets and coarse accumulators in one block of lines of its own, and
+// the rest in a cold record that only views and the pipeline read. A series
+// is identified by its FNV-1a hash together with an independent 64-bit
+// check hash of its key, so the key text is only compared for keys whose
+// FNV-1a hashes collide. AddBatch applies many points at once and loads the
+// memory they need in passes of independent reads before applying them,
+// so that their cache misses overlap.
 package state

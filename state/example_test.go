@@ -1,7 +1,9 @@
 package state_test
 
 import (
+	"errors"
 	"fmt"
+	"math"
 	"time"
 
 	"github.com/headroom-dev/headroom/state"
@@ -47,6 +49,41 @@ func ExampleStore() {
 	// t=-150s mean=500006250000 n=2
 	// t= -90s mean=500007250000 n=2
 	// t= -30s mean=500008250000 n=2
+}
+
+func ExampleStore_AddBatch() {
+	store, err := state.New(state.Config{})
+	if err != nil {
+		panic(err)
+	}
+	cpu := func(host string) state.Key {
+		return state.MakeKey(nil, []byte("cpu_busy_ratio"), []state.Label{{Name: []byte("host"), Value: []byte(host)}})
+	}
+	start := time.Date(2024, 3, 1, 12, 0, 0, 0, time.UTC).UnixMilli()
+	batch := []state.Entry{
+		{Key: cpu("a"), TS: start, Value: 0.25},
+		{Key: cpu("b"), TS: start, Value: 0.5},
+		{Key: cpu("a"), TS: start + 30_000, Value: 0.75},
+		{Key: cpu("a"), TS: start + 150_000, Value: 0.5}, // closes 12:00 for a
+		{Key: cpu("b"), TS: start - 120_000, Value: 0.5}, // before b's open buckets
+		{Key: cpu("c"), TS: start, Value: math.Inf(1)},   // refused, c is not created
+	}
+	closes := 0
+	applied := store.AddBatch(batch, func(*state.Series) { closes++ })
+	fmt.Println("applied", applied, "of", len(batch), "- onClose calls:", closes, "- series:", store.Len())
+	for _, e := range batch {
+		if e.Err != nil {
+			fmt.Println("refused:", errors.Is(e.Err, state.ErrLate), errors.Is(e.Err, state.ErrValue))
+		}
+	}
+	var view state.View
+	store.Do(cpu("a"), func(s *state.Series) { s.View(&view, 0) })
+	fmt.Println(view.Key, view.Y, view.N)
+	// Output:
+	// applied 4 of 6 - onClose calls: 1 - series: 2
+	// refused: true false
+	// refused: false true
+	// cpu_busy_ratio{host="a"} [0.5] [2]
 }
 
 func ExampleSums_Fit() {

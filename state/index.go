@@ -1,111 +1,113 @@
 package state
 
-// index maps a series hash to its slot reference. It is an open-addressing
-// table with linear probing whose entries hold the hash itself, so that a
-// lookup usually reads one cache line: on the ingest path the index probe is
-// followed by the series header and its key text, and every line saved there
-// is a memory round trip saved per point. Deletion shifts later entries back
-// instead of leaving tombstones.
+import "sync/atomic"
+
+// index maps series to slot references. It is an open-addressing table
+// with linear probing whose cells are 8 bytes: a 32-bit tag derived from
+// the hash and the slot reference, so that a partition's table takes half
+// the cache a full hash per cell would, and a lookup usually reads one
+// line. A tag match is confirmed against the full hash and check in the
+// series' hot record, which the point needs next anyway. Deletion shifts
+// later cells back instead of leaving tombstones.
+//
+// The table is published through an atomic pointer and never resized in
+// place, so that batch prefetching may read it without the partition lock
+// (see prefetch.go); cells are only written under the lock.
 type index struct {
-	e     []entry // power-of-two length, or nil while empty
-	n     int
-	shift uint // 64 - log2(len(e))
+	tab atomic.Pointer[table]
+	n   int
 }
 
-// entry is one table cell; ref is the slot reference plus one, 0 when free.
-type entry struct {
-	hash uint64
-	ref  int32
+// table is one generation of the index. Its slice header never changes.
+type table struct {
+	cell  []uint64 // tag<<32 | (slot reference + 1); 0 when free
+	shift uint     // 32 - log2(len(cell))
 }
 
-// home is the preferred cell of hash: Fibonacci hashing takes the high bits
-// of the product, so the partition, which fixes hash mod Partitions, does
-// not bias it.
-func (x *index) home(hash uint64) uint64 {
-	return (hash * 0x9e3779b97f4a7c15) >> x.shift
+// tagOf is the high half of the Fibonacci hash of hash: its top bits
+// pick the home cell, so the partition, which fixes hash mod Partitions,
+// does not bias it, and a table can grow from the tags alone.
+func tagOf(hash uint64) uint32 {
+	return uint32((hash * 0x9e3779b97f4a7c15) >> 32)
 }
 
-// get returns the slot reference of hash.
-func (x *index) get(hash uint64) (int32, bool) {
-	if x.n == 0 {
-		return 0, false
-	}
-	mask := uint64(len(x.e) - 1)
-	for i := x.home(hash); ; i = (i + 1) & mask {
-		e := &x.e[i]
-		if e.ref == 0 {
-			return 0, false
-		}
-		if e.hash == hash {
-			return e.ref - 1, true
-		}
-	}
+func cellOf(tag uint32, ref int32) uint64 {
+	return uint64(tag)<<32 | uint64(uint32(ref)+1)
 }
 
-// put sets the slot reference of hash.
-func (x *index) put(hash uint64, ref int32) {
-	if (x.n+1)*4 > len(x.e)*3 {
-		x.grow()
-	}
-	mask := uint64(len(x.e) - 1)
-	for i := x.home(hash); ; i = (i + 1) & mask {
-		e := &x.e[i]
-		if e.ref == 0 {
-			*e = entry{hash: hash, ref: ref + 1}
-			x.n++
-			return
-		}
-		if e.hash == hash {
-			e.ref = ref + 1
-			return
-		}
-	}
+// home is the preferred cell of tag.
+func (t *table) home(tag uint32) uint64 {
+	return uint64(tag >> t.shift)
 }
 
-// del removes hash, moving back the entries that probed past it so that
-// no lookup stops early.
-func (x *index) del(hash uint64) {
-	if x.n == 0 {
-		return
+// put adds the slot reference ref under tag. Tags may repeat.
+func (x *index) put(tag uint32, ref int32) {
+	t := x.tab.Load()
+	if t == nil || (x.n+1)*4 > len(t.cell)*3 {
+		t = x.grow(t)
 	}
-	mask := uint64(len(x.e) - 1)
-	i := x.home(hash)
-	for ; ; i = (i + 1) & mask {
-		if x.e[i].ref == 0 {
-			return
-		}
-		if x.e[i].hash == hash {
-			break
+	t.insert(cellOf(tag, ref))
+	x.n++
+}
+
+func (t *table) insert(c uint64) {
+	mask := uint64(len(t.cell) - 1)
+	i := t.home(uint32(c >> 32))
+	for t.cell[i] != 0 {
+		i = (i + 1) & mask
+	}
+	t.cell[i] = c
+}
+
+// del removes ref under tag, moving back the cells that probed past it
+// so that no lookup stops early. It reports whether ref was there.
+func (x *index) del(tag uint32, ref int32) bool {
+	t := x.tab.Load()
+	if t == nil {
+		return false
+	}
+	want := cellOf(tag, ref)
+	mask := uint64(len(t.cell) - 1)
+	i := t.home(tag)
+	for ; t.cell[i] != want; i = (i + 1) & mask {
+		if t.cell[i] == 0 {
+			return false
 		}
 	}
 	x.n--
-	for j := (i + 1) & mask; x.e[j].ref != 0; j = (j + 1) & mask {
-		// Move e[j] into the hole at i unless its home lies cyclically
+	for j := (i + 1) & mask; t.cell[j] != 0; j = (j + 1) & mask {
+		// Move cell j into the hole at i unless its home lies cyclically
 		// in (i, j], where it would no longer be found.
-		h := x.home(x.e[j].hash)
+		h := t.home(uint32(t.cell[j] >> 32))
 		if (j-h)&mask >= (j-i)&mask {
-			x.e[i] = x.e[j]
+			t.cell[i] = t.cell[j]
 			i = j
 		}
 	}
-	x.e[i] = entry{}
+	t.cell[i] = 0
+	return true
 }
 
-// grow doubles the table (or makes the first one) and reinserts.
-func (x *index) grow() {
-	old := x.e
-	size := max(2*len(old), 16)
-	x.e = make([]entry, size)
-	x.shift = 64
-	for s := size; s > 1; s >>= 1 {
-		x.shift--
+// grow publishes a table of twice the size of old (or the first one)
+// holding old's cells, and returns it.
+func (x *index) grow(old *table) *table {
+	size := 16
+	if old != nil {
+		size = 2 * len(old.cell)
 	}
-	x.n = 0
-	for _, e := range old {
-		if e.ref != 0 {
-			x.put(e.hash, e.ref-1)
+	t := &table{cell: make([]uint64, size), shift: 32}
+	for s := size; s > 1; s >>= 1 {
+		t.shift--
+	}
+	if old != nil {
+		for _, c := range old.cell {
+			if c != 0 {
+				t.insert(c)
+			}
 		}
 	}
+	x.tab.Store(t)
+	return t
 }
 
 // len returns the number of entries.

@@ -5,8 +5,25 @@ import (
 	"testing"
 )
 
-// The index behaves like a map under random puts and deletes, including
-// hashes that share a home cell and wrap around the end of the table.
+// has reports whether the index reaches ref under tag by probing from its
+// home cell, as lookups do.
+func (x *index) has(tag uint32, ref int32) bool {
+	t := x.tab.Load()
+	if t == nil {
+		return false
+	}
+	mask := uint64(len(t.cell) - 1)
+	for i := t.home(tag); t.cell[i] != 0; i = (i + 1) & mask {
+		if t.cell[i] == cellOf(tag, ref) {
+			return true
+		}
+	}
+	return false
+}
+
+// The index behaves like a set of (tag, ref) pairs under random puts and
+// deletes, including tags that repeat or share a home cell and probes that
+// wrap around the end of the table.
 func TestIndex(t *testing.T) {
 	cases := []struct {
 		name  string
@@ -21,39 +38,52 @@ func TestIndex(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(c.space, 1))
 			var x index
-			ref := map[uint64]int32{}
+			ref := map[int32]uint32{} // ref → tag
+			var live []int32
+			next := int32(0)
 			for op := range c.ops {
 				h := rng.Uint64N(c.space) * 0x10000 // equal low bits, as in one partition
-				switch rng.IntN(3) {
-				case 0, 1:
-					x.put(h, int32(op))
-					ref[h] = int32(op)
-				case 2:
-					x.del(h)
-					delete(ref, h)
+				if rng.IntN(3) < 2 || len(live) == 0 {
+					r := next
+					next++
+					x.put(tagOf(h), r)
+					ref[r] = tagOf(h)
+					live = append(live, r)
+				} else {
+					j := rng.IntN(len(live))
+					r := live[j]
+					live[j] = live[len(live)-1]
+					live = live[:len(live)-1]
+					if !x.del(ref[r], r) {
+						t.Fatalf("op %d: del(%#x, %d) found nothing", op, ref[r], r)
+					}
+					delete(ref, r)
+					if x.has(tagOf(h), r) || x.del(tagOf(h), r) {
+						t.Fatalf("op %d: deleted ref still there", op)
+					}
 				}
 				if x.len() != len(ref) {
 					t.Fatalf("op %d: len %d, want %d", op, x.len(), len(ref))
 				}
 				if op%97 == 0 {
-					for k, v := range ref {
-						if got, ok := x.get(k); !ok || got != v {
-							t.Fatalf("op %d: get(%#x) = %d %v, want %d", op, k, got, ok, v)
+					for r, tag := range ref {
+						if !x.has(tag, r) {
+							t.Fatalf("op %d: (%#x, %d) not found", op, tag, r)
 						}
 					}
 				}
-				if _, ok := x.get(h + 1); ok {
-					t.Fatalf("found a hash never put")
+				if x.has(tagOf(h), next) {
+					t.Fatalf("found a ref never put")
 				}
 			}
-			for k := range ref {
-				x.del(k)
+			for r, tag := range ref {
+				x.del(tag, r)
 			}
 			if x.len() != 0 {
 				t.Fatalf("len %d after deleting all", x.len())
 			}
-			for _, e := range x.e {
-				if e.ref != 0 {
+			for _, c := range x.tab.Load().cell {
+				if c != 0 {
 					t.Fatal("cell left in use")
 				}
 			}

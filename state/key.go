@@ -17,13 +17,19 @@ type Label struct {
 type Key struct {
 	Hash uint64
 	Text []byte
+	// Check is a second 64-bit hash of Text, independent of Hash; MakeKey
+	// fills it in. The store takes (Hash, Check) for the identity of a
+	// series and only compares texts of keys whose Hash collides. Zero
+	// means not computed: the store then computes it from Text.
+	Check uint64
 }
 
 // MakeKey builds the key of metric with labels, appending the canonical text
 // to dst[:0]. It sorts labels by name in place.
 func MakeKey(dst []byte, metric []byte, labels []Label) Key {
 	dst = AppendCanonical(dst[:0], metric, labels)
-	return Key{Hash: Hash(dst), Text: dst}
+	h, c := hashes(dst)
+	return Key{Hash: h, Text: dst, Check: c}
 }
 
 // AppendCanonical appends the canonical text of a series to dst: the metric

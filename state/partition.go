@@ -3,71 +3,98 @@ package state
 import (
 	"errors"
 	"sync"
+	"sync/atomic"
 )
 
 // partition is one lock's worth of series: an index and a slab of series
-// headers and bucket memory, grown in chunks and never shrunk.
+// records and bucket memory, grown in chunks and never shrunk.
 type partition struct {
 	mu     sync.Mutex
-	index  index            // hash → slot reference
+	index  index            // tag → slot reference
 	spill  map[string]int32 // keys whose hash the index already gives to another key; rarely used
 	chunks []*chunk
-	free   []int32 // slot references of deleted series, reused first
-	slots  int     // slots over all chunks
+	dir    atomic.Pointer[[]*chunk] // chunks as published to lock-free readers
+	free   []int32                  // slot references of deleted series, reused first
+	slots  int                      // slots over all chunks
 
 	_ [64]byte // keeps neighbouring partitions' locks off this cache line
 }
 
-// chunk holds the headers and the bucket memory of a run of series, as one
-// array per field so that a series' buckets are contiguous and no series
-// needs an allocation of its own.
+// chunk holds the records and the bucket memory of a run of series, as
+// one array per kind so that the hot records are dense, a series' buckets
+// are contiguous and no series needs an allocation of its own. Its slice
+// headers never change once the chunk is published.
 type chunk struct {
 	lay    *layout
+	hot    []hot // cache-line aligned
 	series []Series
-	mean   []float32 // len(series) × buckets per series
-	count  []uint16
-	used   int // slots handed out, from the front
+	extra  []extraSlot // open slots 2 and 3 of each series when the lateness needs them, else nil
+	blocks []byte      // len(series) blocks of lay.blockBytes, cache-line aligned
+	used   int         // slots handed out, from the front
 }
 
 // A slot reference is chunk<<16 | index in chunk.
 func slotRef(c, i int) int32 { return int32(c<<16 | i) }
 
-func (p *partition) at(ref int32) *Series {
-	return &p.chunks[ref>>16].series[ref&0xffff]
+// at returns the chunk and row of a slot reference.
+func (p *partition) at(ref int32) (*chunk, int) {
+	return p.chunks[ref>>16], int(ref & 0xffff)
 }
 
-// lookup finds the series of k, verifying its text: two keys may share a
-// hash.
-func (p *partition) lookup(k Key) *Series {
-	if ref, ok := p.index.get(k.Hash); ok {
-		if s := p.at(ref); s.key == string(k.Text) {
-			return s
+// find returns the slot of the series whose key has hash and check. When
+// the index holds a different key with the same hash, clash is set.
+func (p *partition) find(hash, check uint64) (ref int32, ok, clash bool) {
+	t := p.index.tab.Load()
+	if t == nil {
+		return 0, false, false
+	}
+	tag := tagOf(hash)
+	mask := uint64(len(t.cell) - 1)
+	for i := t.home(tag); ; i = (i + 1) & mask {
+		c := t.cell[i]
+		if c == 0 {
+			return 0, false, false
 		}
+		if uint32(c>>32) != tag {
+			continue
+		}
+		r := int32(uint32(c) - 1)
+		h := &p.chunks[r>>16].hot[r&0xffff]
+		if h.hash == hash {
+			return r, h.check == check, h.check != check
+		}
+	}
+}
+
+// lookup finds the series of k, whose Check is set. Keys whose hash
+// collides with an indexed key of other text live in the spill map.
+func (p *partition) lookup(k Key) (int32, bool) {
+	if ref, ok, _ := p.find(k.Hash, k.Check); ok {
+		return ref, true
 	}
 	if len(p.spill) > 0 {
-		if ref, ok := p.spill[string(k.Text)]; ok {
-			return p.at(ref)
-		}
+		ref, ok := p.spill[string(k.Text)]
+		return ref, ok
 	}
-	return nil
+	return 0, false
 }
 
-// insert indexes a new series.
-func (p *partition) insert(s *Series, ref int32) {
-	if _, taken := p.index.get(s.hash); taken {
+// insert indexes the new series of k in slot ref.
+func (p *partition) insert(k Key, ref int32) {
+	if _, ok, clash := p.find(k.Hash, k.Check); ok || clash {
 		if p.spill == nil {
 			p.spill = make(map[string]int32)
 		}
-		p.spill[s.key] = ref
+		p.spill[string(k.Text)] = ref
 		return
 	}
-	p.index.put(s.hash, ref)
+	p.index.put(tagOf(k.Hash), ref)
 }
 
 // remove unindexes the series of k and returns its slot reference.
 func (p *partition) remove(k Key) (int32, bool) {
-	if ref, ok := p.index.get(k.Hash); ok && p.at(ref).key == string(k.Text) {
-		p.index.del(k.Hash)
+	if ref, ok, _ := p.find(k.Hash, k.Check); ok {
+		p.index.del(tagOf(k.Hash), ref)
 		return ref, true
 	}
 	if ref, ok := p.spill[string(k.Text)]; ok {
@@ -83,29 +110,27 @@ func (p *partition) remove(k Key) (int32, bool) {
 var errChunks = errors.New("state: partition out of chunk references")
 
 // alloc hands out a slot: a freed one if any, else the next one of the
-// last chunk, else one of a new chunk. A new chunk adds an eighth to the
+// last chunk, else one of a new chunk. A new chunk adds a sixteenth to the
 // partition's slots, at least firstChunk and at most chunkSize, so that a
-// partition holds at most an eighth more slots than it ever needed (on
+// partition holds at most a sixteenth more slots than it ever needed (on
 // average half that) whatever its size.
-func (p *partition) alloc(chunkSize int, lay *layout) (int32, *Series, error) {
+func (p *partition) alloc(chunkSize int, lay *layout) (int32, error) {
 	if n := len(p.free); n > 0 {
 		ref := p.free[n-1]
 		p.free = p.free[:n-1]
-		return ref, p.at(ref), nil
+		return ref, nil
 	}
 	k := len(p.chunks) - 1
 	if k < 0 || p.chunks[k].used == len(p.chunks[k].series) {
 		if len(p.chunks) >= maxChunks {
-			return 0, nil, errChunks
+			return 0, errChunks
 		}
-		size := min(chunkSize, fillPages(max(firstChunk, p.slots/8), lay.buckets))
-		p.chunks = append(p.chunks, &chunk{
-			lay:    lay,
-			series: make([]Series, size),
-			mean:   make([]float32, size*lay.buckets),
-			count:  make([]uint16, size*lay.buckets),
-		})
-		p.slots += size
+		p.chunks = append(p.chunks, newChunk(lay, min(chunkSize, fillPages(max(firstChunk, p.slots/16), lay.blockBytes))))
+		// Elements below len are never written again, so readers of an
+		// older header see them unchanged.
+		dir := p.chunks
+		p.dir.Store(&dir)
+		p.slots += len(p.chunks[k+1].series)
 		k++
 	}
 	c := p.chunks[k]
@@ -113,19 +138,31 @@ func (p *partition) alloc(chunkSize int, lay *layout) (int32, *Series, error) {
 	c.used++
 	s := &c.series[i]
 	s.ch, s.row = c, int32(i)
-	return slotRef(k, i), s, nil
+	return slotRef(k, i), nil
+}
+
+func newChunk(lay *layout, size int) *chunk {
+	c := &chunk{
+		lay:    lay,
+		hot:    makeHot(size),
+		series: make([]Series, size),
+		blocks: makeLines(size * lay.blockBytes),
+	}
+	if lay.slots > 2 {
+		c.extra = make([]extraSlot, size*(lay.slots-2))
+	}
+	return c
 }
 
 // allocPage is the granule in which the Go runtime hands out large objects.
 const allocPage = 8 << 10
 
-// fillPages rounds a chunk of size series up so that its array of means
-// ends on an allocation page: the rest of the page would be lost anyway.
-// Chunks small enough for the runtime's size classes are left as they are.
-func fillPages(size, buckets int) int {
-	row := buckets * 4 // bytes of means per series
-	if bytes := size * row; bytes > 32<<10 {
-		return (bytes + allocPage - 1) / allocPage * allocPage / row
+// fillPages rounds a chunk of size series up so that its blocks end on an
+// allocation page: the rest of the page would be lost anyway. Chunks small
+// enough for the runtime's size classes are left as they are.
+func fillPages(size, blockBytes int) int {
+	if bytes := size * blockBytes; bytes > 32<<10 {
+		return (bytes + allocPage - 1) / allocPage * allocPage / blockBytes
 	}
 	return size
 }

@@ -19,7 +19,8 @@ import (
 // a finest bucket has closed, End is 0 and the view is empty.
 func (s *Series) View(dst *View, maxAge time.Duration) {
 	lay := s.ch.lay
-	dst.Key, dst.Hash = s.key, s.hash
+	h := s.hot()
+	dst.Key, dst.Hash = s.key, h.hash
 	dst.End = s.Closed()
 	dst.T, dst.Y, dst.W, dst.N = dst.T[:0], dst.Y[:0], dst.W[:0], dst.N[:0]
 	if cap(dst.Levels) < lay.n {
@@ -31,7 +32,8 @@ func (s *Series) View(dst *View, maxAge time.Duration) {
 	for l := range dst.Levels {
 		dst.Levels[l] = LevelView{Width: lay.width[l], Y: dst.Levels[l].Y[:0]}
 	}
-	if !s.closedAny {
+	first := h.first
+	if first <= s.born {
 		return
 	}
 
@@ -40,10 +42,10 @@ func (s *Series) View(dst *View, maxAge time.Duration) {
 	if maxAge > 0 {
 		cutoff = end - min(maxAge.Milliseconds(), maxAbsTime)
 	}
-	mean, count := s.rows()
+	blk := s.ch.block(int(s.row))
 	var last [maxLevels]int64
 	for l := range lay.n {
-		last[l] = s.head(lay, l)
+		last[l] = head(lay, first, l)
 	}
 
 	// Each ring as a uniform sequence.
@@ -52,13 +54,14 @@ func (s *Series) View(dst *View, maxAge time.Duration) {
 		from := max(last[l]-n+1, ceilDiv(cutoff, w))
 		lv := &dst.Levels[l]
 		lv.Start = from * w
-		m, c := mean[lay.offset[l]:][:n], count[lay.offset[l]:][:n]
+		r := blk.ring(lay, l)
 		for j, i := from, mod(from, n); j <= last[l]; j, i = j+1, next(i, n) {
-			if c[i] == 0 {
+			m, c := r.at(i)
+			if *c == 0 {
 				lv.Y = append(lv.Y, math.NaN())
 				continue
 			}
-			lv.Y = append(lv.Y, s.base+float64(m[i]))
+			lv.Y = append(lv.Y, h.base+float64(*m))
 		}
 	}
 
@@ -79,16 +82,17 @@ func (s *Series) View(dst *View, maxAge time.Duration) {
 		w, n := lay.width[l], lay.count[l]
 		from := max(lo[l]/w, last[l]-n+1, ceilDiv(cutoff, w))
 		to := min(hi[l]/w-1, last[l])
-		m, c := mean[lay.offset[l]:][:n], count[lay.offset[l]:][:n]
 		wh := float64(w) / float64(time.Hour/time.Millisecond)
+		r := blk.ring(lay, l)
 		for j, i := from, mod(from, n); j <= to; j, i = j+1, next(i, n) {
-			if c[i] == 0 {
+			m, c := r.at(i)
+			if *c == 0 {
 				continue
 			}
 			dst.T = append(dst.T, (float64(j*w-end)+float64(w)/2)/1000)
-			dst.Y = append(dst.Y, s.base+float64(m[i]))
+			dst.Y = append(dst.Y, h.base+float64(*m))
 			dst.W = append(dst.W, wh)
-			dst.N = append(dst.N, uint32(c[i]))
+			dst.N = append(dst.N, uint32(*c))
 		}
 	}
 }

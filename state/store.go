@@ -40,32 +40,68 @@ func New(cfg Config) (*Store, error) {
 // call back into the Store.
 //
 // Add rejects non-finite values (ErrValue), points in a bucket that has
-// already closed (ErrLate), timestamps beyond ±2^53 ms (ErrTime) and new
-// series beyond the limit (ErrSeriesCap); the errors wrap these with
-// detail. k.Text is copied only when the series is new.
+// already closed (ErrLate), timestamps beyond ±2^53 ms (ErrTime), new
+// series beyond the limit (ErrSeriesCap) and points beyond 2^32-1 in one
+// finest bucket of a series (ErrFull); the errors wrap these with detail
+// and a refused point changes nothing. k.Text is read only when k.Check is
+// zero or the series is new or its hash collides with another's, and
+// copied only when the series is new.
 func (s *Store) Add(k Key, ts int64, v float64, onClose func(*Series)) error {
+	if err := checkPoint(ts, v); err != nil {
+		return err
+	}
+	if k.Check == 0 {
+		k.Check = checkHash(k.Text)
+	}
+	return s.add(s.part(k.Hash), k, ts, v, onClose)
+}
+
+// checkPoint refuses what no series accepts.
+func checkPoint(ts int64, v float64) error {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return fmt.Errorf("%w: %v", ErrValue, v)
 	}
 	if ts > maxAbsTime || ts < -maxAbsTime {
 		return fmt.Errorf("%w: %d ms", ErrTime, ts)
 	}
-	p := s.part(k.Hash)
+	return nil
+}
+
+// add is Add after the checks, with k.Check set and p the partition of k.
+func (s *Store) add(p *partition, k Key, ts int64, v float64, onClose func(*Series)) error {
 	p.mu.Lock()
 	defer p.mu.Unlock()
-	se := p.lookup(k)
-	if se == nil {
-		var err error
-		if se, err = s.create(p, k, ts, v); err != nil {
-			return err
+	return s.addLocked(p, k, ts, v, onClose, nil, 0)
+}
+
+// addLocked is add under p's lock. If hint is not nil, row of hint, a
+// chunk of p, may hold the series: the identity in its hot record decides
+// whether it does.
+func (s *Store) addLocked(p *partition, k Key, ts int64, v float64, onClose func(*Series), hint *chunk, row int) error {
+	c := hint
+	if c != nil {
+		// A freed slot's hot record is zero, which matches no key but
+		// one whose hash and check are both zero.
+		if h := &c.hot[row]; h.hash != k.Hash || h.check != k.Check || k.Hash|k.Check == 0 {
+			c = nil
 		}
 	}
-	closed, err := se.add(s.cfg.lay, ts, v)
+	if c == nil {
+		ref, ok := p.lookup(k)
+		if !ok {
+			var err error
+			if ref, err = s.create(p, k, ts, v); err != nil {
+				return err
+			}
+		}
+		c, row = p.at(ref)
+	}
+	closed, err := c.add(row, ts, v)
 	if err != nil {
 		return err
 	}
 	if closed && onClose != nil {
-		onClose(se)
+		onClose(&c.series[row])
 	}
 	return nil
 }
@@ -79,33 +115,39 @@ func (s *Store) part(hash uint64) *partition {
 	return &s.parts[Partition(hash, len(s.parts))]
 }
 
-// create makes the series of k, whose first point is (ts, v).
-func (s *Store) create(p *partition, k Key, ts int64, v float64) (*Series, error) {
+// create makes the series of k, whose first point is (ts, v), and returns
+// its slot reference.
+func (s *Store) create(p *partition, k Key, ts int64, v float64) (int32, error) {
 	if n := s.n.Add(1); n > int64(s.cfg.maxSeries) {
 		s.n.Add(-1)
-		return nil, fmt.Errorf("%w: %d series", ErrSeriesCap, s.cfg.maxSeries)
+		return 0, fmt.Errorf("%w: %d series", ErrSeriesCap, s.cfg.maxSeries)
 	}
-	ref, se, err := p.alloc(s.cfg.chunkSize, s.cfg.lay)
+	ref, err := p.alloc(s.cfg.chunkSize, s.cfg.lay)
 	if err != nil {
 		s.n.Add(-1)
-		return nil, err
+		return 0, err
 	}
-	se.reset(s.cfg.lay, string(k.Text), k.Hash, ts, v)
-	p.insert(se, ref)
-	return se, nil
+	c, row := p.at(ref)
+	c.reset(row, k, ts, v)
+	p.insert(k, ref)
+	return ref, nil
 }
 
 // Do runs fn on the series of k under its partition lock and reports
 // whether the series exists. fn must not call back into the Store.
 func (s *Store) Do(k Key, fn func(*Series)) bool {
+	if k.Check == 0 {
+		k.Check = checkHash(k.Text)
+	}
 	p := s.part(k.Hash)
 	p.mu.Lock()
 	defer p.mu.Unlock()
-	se := p.lookup(k)
-	if se == nil {
+	ref, ok := p.lookup(k)
+	if !ok {
 		return false
 	}
-	fn(se)
+	c, row := p.at(ref)
+	fn(&c.series[row])
 	return true
 }
 
@@ -132,6 +174,9 @@ func (s *Store) Range(part int, fn func(*Series) bool) {
 // Delete removes the series of k and reports whether it existed. Its slot
 // and bucket memory go to a free list for the next new series.
 func (s *Store) Delete(k Key) bool {
+	if k.Check == 0 {
+		k.Check = checkHash(k.Text)
+	}
 	p := s.part(k.Hash)
 	p.mu.Lock()
 	defer p.mu.Unlock()
@@ -139,8 +184,10 @@ func (s *Store) Delete(k Key) bool {
 	if !ok {
 		return false
 	}
-	se := p.at(ref)
+	c, row := p.at(ref)
+	se := &c.series[row]
 	*se = Series{ch: se.ch, row: se.row, incidents: se.incidents[:0]}
+	c.hot[row] = hot{} // matches no key; reset clears the rest for the next series
 	p.free = append(p.free, ref)
 	s.n.Add(-1)
 	return true
@@ -157,13 +204,17 @@ func (s *Store) Layout() []Level {
 	return append([]Level(nil), s.cfg.lay.levels...)
 }
 
-// indexEntryBytes estimates one index entry: a 16-byte cell at a load
+// indexEntryBytes estimates one index entry: an 8-byte cell at a load
 // between three eighths and three quarters.
-const indexEntryBytes = 32
+const indexEntryBytes = 16
 
-// BytesPerSeries returns the memory a series is designed to take: its
-// header, its buckets (a float32 mean and a uint16 count each) and an index
-// entry; the key text and incidents come on top.
+// BytesPerSeries returns the memory a series is designed to take: its hot
+// and cold records, its block of buckets (a float32 mean and a uint16
+// count each, with a header line and padding), open slots beyond two if
+// the lateness needs them, and an index entry; the key text and incidents
+// come on top.
 func (s *Store) BytesPerSeries() int {
-	return int(unsafe.Sizeof(Series{})) + s.cfg.lay.buckets*(4+2) + indexEntryBytes
+	lay := s.cfg.lay
+	return int(unsafe.Sizeof(hot{})+unsafe.Sizeof(Series{})) + lay.blockBytes +
+		(lay.slots-2)*int(unsafe.Sizeof(extraSlot{})) + indexEntryBytes
 }

@@ -365,20 +365,42 @@ func TestIncidents(t *testing.T) {
 	})
 }
 
-// A partition's slots grow by an eighth at a time, in chunks of at most
+// A partition's slots grow by a sixteenth at a time, in chunks of at most
 // ChunkSize, so slack stays bounded whatever the number of series.
 func TestChunkGrowth(t *testing.T) {
 	s := newStore(t, Config{Partitions: 1, ChunkSize: 256})
 	p := &s.parts[0]
 	for i := range 5000 {
 		mustAdd(t, s, testKey(fmt.Sprint("g", i)), t0, 1)
-		if n := i + 1; p.slots > n+n/8+16+4 { // an eighth, a minimum chunk, page rounding
+		if n := i + 1; p.slots > n+n/16+16+4 { // a sixteenth, a minimum chunk, page rounding
 			t.Fatalf("%d series in %d slots", n, p.slots)
 		}
 	}
 	for _, c := range p.chunks {
-		if len(c.series) > 256 || len(c.mean) != len(c.series)*552 || len(c.count) != len(c.series)*552 {
-			t.Fatalf("chunk of %d series, %d means, %d counts", len(c.series), len(c.mean), len(c.count))
+		if len(c.series) > 256 || len(c.hot) != len(c.series) || len(c.blocks) != len(c.series)*s.cfg.lay.blockBytes {
+			t.Fatalf("chunk of %d series, %d hot records, %d bytes of blocks", len(c.series), len(c.hot), len(c.blocks))
+		}
+	}
+}
+
+// growthChunks bounds the chunks a partition makes before they reach
+// ChunkSize, which the configuration check counts on.
+func TestGrowthChunksBound(t *testing.T) {
+	for _, levels := range [][]Level{DefaultLayout(), {{time.Minute, 1}}} {
+		for _, size := range []int{1, 16, 1024, maxChunkSize} {
+			s := newStore(t, Config{Layout: levels, ChunkSize: size, MaxSeries: 1000})
+			slots, small := 0, 0
+			for {
+				n := min(size, fillPages(max(firstChunk, slots/16), s.cfg.lay.blockBytes))
+				if n == size {
+					break
+				}
+				slots += n
+				small++
+			}
+			if small > growthChunks {
+				t.Errorf("layout %v, chunk size %d: %d smaller chunks, more than %d", levels, size, small, growthChunks)
+			}
 		}
 	}
 }

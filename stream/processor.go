@@ -152,23 +152,37 @@ type Worker struct {
 	refused uint64
 	keyBuf  []byte
 	labels  []state.Label
+	entries []state.Entry // the message's decoded points, applied in one batch
+	texts   []byte        // arena holding the entries' key texts
 }
 
 // NewWorker returns a Worker for one goroutine.
 func (p *Processor) NewWorker() *Worker {
 	w := &Worker{p: p, dec: NewDecoder(p.cfg.Limits, p.cfg.Now), sc: forecast.NewScratch()}
 	w.onClose = w.evaluate
-	w.onPoint = w.apply
+	w.onPoint = w.collect
 	w.onBad = w.reject
 	return w
 }
 
 // Handle decodes one message received on subject and applies its points.
 // It returns how many points were applied.
+//
+// The points of a message go to the store in one batch, which overlaps
+// their memory accesses; points the store refuses are reported after the
+// batch, in message order.
 func (w *Worker) Handle(subject string, msg []byte) int {
 	w.subject, w.msg = subject, msg
 	w.applied, w.refused = 0, 0
+	w.entries, w.texts = w.entries[:0], w.texts[:0]
 	w.dec.Decode(msg, w.onPoint, w.onBad)
+	w.applied = uint64(w.p.store.AddBatch(w.entries, w.onClose))
+	for i := range w.entries {
+		if e := &w.entries[i]; e.Err != nil {
+			w.refuse(e.Key.Text, e.Err)
+		}
+	}
+	clear(w.entries) // drop the errors; the texts stay in the arena
 	w.p.messages.Add(1)
 	w.p.points.Add(w.applied)
 	if w.refused > 0 {
@@ -192,24 +206,33 @@ func (w *Worker) Add(metric string, labels []state.Label, ts int64, v float64) e
 	return nil
 }
 
-func (w *Worker) apply(pt *Point) {
-	if err := w.p.store.Add(pt.Key, pt.TS, pt.Value, w.onClose); err != nil {
-		w.refused++
-		rec := RejectRecord{Kind: "rejected", Subject: w.subject, Index: -1, Series: string(pt.Key.Text), Detail: err.Error()}
-		switch {
-		case errors.Is(err, state.ErrLate):
-			rec.Reason = "late"
-		case errors.Is(err, state.ErrSeriesCap):
-			rec.Reason = "series_limit"
-		case errors.Is(err, state.ErrValue):
-			rec.Reason = "non_finite"
-		default:
-			rec.Reason = "refused"
-		}
-		w.p.emitReject(&rec, w.msg)
-		return
+// collect queues a decoded point for the message's batch. The decoder reuses
+// the key text's memory for the next point, so the text is copied into
+// the worker's arena; an arena that grows leaves earlier entries pointing
+// into the old array, which stays as it was.
+func (w *Worker) collect(pt *Point) {
+	n := len(w.texts)
+	w.texts = append(w.texts, pt.Key.Text...)
+	k := pt.Key
+	k.Text = w.texts[n:len(w.texts):len(w.texts)]
+	w.entries = append(w.entries, state.Entry{Key: k, TS: pt.TS, Value: pt.Value})
+}
+
+// refuse reports a point of series text that the store refused with err.
+func (w *Worker) refuse(text []byte, err error) {
+	w.refused++
+	rec := RejectRecord{Kind: "rejected", Subject: w.subject, Index: -1, Series: string(text), Detail: err.Error()}
+	switch {
+	case errors.Is(err, state.ErrLate):
+		rec.Reason = "late"
+	case errors.Is(err, state.ErrSeriesCap):
+		rec.Reason = "series_limit"
+	case errors.Is(err, state.ErrValue):
+		rec.Reason = "non_finite"
+	default:
+		rec.Reason = "refused"
 	}
-	w.applied++
+	w.p.emitReject(&rec, w.msg)
 }
 
 func (w *Worker) reject(r Reject) {
