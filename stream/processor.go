@@ -261,6 +261,10 @@ func (w *Worker) evaluate(se *state.Series) {
 		memo.RulesSet = true
 	}
 	se.View(&w.view, p.cfg.History)
+	if w.view.Len() < minSupport {
+		// A handful of buckets gives forecasts too wild to be worth a record.
+		return
+	}
 	eng := forecast.Choose(&w.view, p.cfg.Engine)
 	if !eng.Fit(&w.view, w.sc, &w.fc) {
 		return
@@ -377,5 +381,9 @@ func (w *Worker) publishBreach(se *state.Series, r *forecast.Rule, fc *forecast.
 	p.breaches.Add(1)
 	p.emit.Breach(&rec)
 }
+
+// minSupport is the fewest non-empty buckets a series needs before it is
+// forecast: ten minutes of data at the finest resolution.
+const minSupport = 10
 
 func round4(x float64) float64 { return math.Round(x*1e4) / 1e4 }
