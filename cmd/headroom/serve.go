@@ -42,6 +42,8 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	fs.StringVar(&sc.dial.Creds, "creds", "", "NATS credentials file")
 	fs.StringVar(&sc.dial.User, "user", "", "NATS user")
 	fs.StringVar(&sc.dial.Password, "password", "", "NATS password (or set HEADROOM_NATS_PASSWORD)")
+	fs.StringVar(&sc.dial.Token, "token", "", "NATS token (or set HEADROOM_NATS_TOKEN)")
+	fs.StringVar(&sc.dial.NKeySeed, "nkey", "", "file holding the NKey seed for NATS")
 	fs.StringVar(&sc.dial.TLSCA, "tls-ca", "", "CA bundle that signs the NATS server's certificate")
 	fs.StringVar(&sc.dial.TLSCert, "tls-cert", "", "client certificate for NATS")
 	fs.StringVar(&sc.dial.TLSKey, "tls-key", "", "client key for NATS")
@@ -59,6 +61,9 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	}
 	if sc.dial.Password == "" {
 		sc.dial.Password = os.Getenv("HEADROOM_NATS_PASSWORD")
+	}
+	if sc.dial.Token == "" {
+		sc.dial.Token = os.Getenv("HEADROOM_NATS_TOKEN")
 	}
 	var err error
 	if sc.log, err = sc.eng.logger(stderr); err != nil {
