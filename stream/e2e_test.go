@@ -225,6 +225,12 @@ func TestEndToEnd(t *testing.T) {
 		})
 	}
 
+	col.mu.Lock()
+	if col.fc == 0 {
+		t.Error("no forecast records on the forecast subjects")
+	}
+	col.mu.Unlock()
+
 	t.Run("cleanup resolves", func(t *testing.T) {
 		key := `volume_used_ratio{host="cleaned",mount="/data"}`
 		// Fills at 0.06/h from 0.55, cleaned to 0.3 after 4 h, then flat.
