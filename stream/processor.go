@@ -228,7 +228,9 @@ func (w *Worker) refuse(text []byte, err error) {
 	case errors.Is(err, state.ErrSeriesCap):
 		rec.Reason = "series_limit"
 	case errors.Is(err, state.ErrValue):
-		rec.Reason = "non_finite"
+		rec.Reason = ReasonNonFinite
+	case errors.Is(err, state.ErrTime):
+		rec.Reason = ReasonTSOutOfRange
 	default:
 		rec.Reason = "refused"
 	}
