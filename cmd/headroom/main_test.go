@@ -265,3 +265,21 @@ func TestReplayCleanup(t *testing.T) {
 		t.Errorf("breach states %v over %d incidents, want opened … resolved on one incident", states, len(incidents))
 	}
 }
+
+// TestDeployRules checks that the example rules file parses and that flag
+// rules combine with it.
+func TestDeployRules(t *testing.T) {
+	rf := ruleFlags{file: filepath.Join("..", "..", "deploy", "rules.json"), threshold: 5, direction: "below", horizon: time.Hour,
+		set: map[string]bool{"threshold": true}}
+	rules, err := rf.rules()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rules) != 4 || rules[0].Name != "volume-full" || rules[3].Threshold != 5 || rules[3].Direction.String() != "below" {
+		t.Errorf("rules %+v", rules)
+	}
+	bad := ruleFlags{match: "x", set: map[string]bool{"match": true}}
+	if _, err := bad.rules(); err == nil {
+		t.Error("--match without --threshold accepted")
+	}
+}
