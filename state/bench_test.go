@@ -23,6 +23,22 @@ func benchKeys(n int) []Key {
 	return keys
 }
 
+// benchStep is the spacing of one series' points in the Add benchmarks.
+const benchStep = 10 * sec
+
+// primedStore makes n live series, each with one point at its own phase
+// within benchStep, so that later rounds close buckets at staggered points.
+func primedStore(b *testing.B, n int) ([]Key, *Store, func(int) int64) {
+	b.Helper()
+	keys := benchKeys(n)
+	s := newStore(b, Config{})
+	phase := func(j int) int64 { return int64(j) * 7919 % benchStep }
+	for j, k := range keys {
+		mustAdd(b, s, k, t0+phase(j), 1)
+	}
+	return keys, s, phase
+}
+
 // BenchmarkAdd feeds points round-robin to live series, each on its own
 // clock at one point every 10 s (with a per-series phase), so that each
 // series closes a one-minute bucket every sixth point. ns/op is per point.
@@ -31,19 +47,13 @@ func benchKeys(n int) []Key {
 func BenchmarkAdd(b *testing.B) {
 	for _, n := range []int{benchSeries, 1000} {
 		b.Run(fmt.Sprint("series=", n), func(b *testing.B) {
-			keys := benchKeys(n)
-			s := newStore(b, Config{})
-			const step = 10 * sec
-			phase := func(j int) int64 { return int64(j) * 7919 % step }
-			for j, k := range keys {
-				mustAdd(b, s, k, t0+phase(j), 1)
-			}
+			keys, s, phase := primedStore(b, n)
 			b.ReportAllocs()
 			b.ResetTimer()
 			for i := range b.N {
 				j := i % n
 				r := int64(i/n) + 1
-				if err := s.Add(keys[j], t0+r*step+phase(j), float64(r%50), nil); err != nil {
+				if err := s.Add(keys[j], t0+r*benchStep+phase(j), float64(r%50), nil); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -56,13 +66,7 @@ func BenchmarkAdd(b *testing.B) {
 func BenchmarkAddBatch(b *testing.B) {
 	for _, n := range []int{benchSeries, 1000} {
 		b.Run(fmt.Sprint("series=", n), func(b *testing.B) {
-			keys := benchKeys(n)
-			s := newStore(b, Config{})
-			const step = 10 * sec
-			phase := func(j int) int64 { return int64(j) * 7919 % step }
-			for j, k := range keys {
-				mustAdd(b, s, k, t0+phase(j), 1)
-			}
+			keys, s, phase := primedStore(b, n)
 			es := make([]Entry, 128)
 			j, r := 0, int64(1) // series and round of the next point
 			b.ReportAllocs()
@@ -70,7 +74,7 @@ func BenchmarkAddBatch(b *testing.B) {
 			for i := 0; i < b.N; i += len(es) {
 				batch := es[:min(len(es), b.N-i)]
 				for x := range batch {
-					batch[x] = Entry{Key: keys[j], TS: t0 + r*step + phase(j), Value: float64(r % 50)}
+					batch[x] = Entry{Key: keys[j], TS: t0 + r*benchStep + phase(j), Value: float64(r % 50)}
 					if j++; j == n {
 						j, r = 0, r+1
 					}
@@ -125,13 +129,7 @@ func BenchmarkMakeKey(b *testing.B) {
 // BenchmarkAddParallel is BenchmarkAdd from GOMAXPROCS goroutines, each
 // owning every GOMAXPROCS-th series.
 func BenchmarkAddParallel(b *testing.B) {
-	keys := benchKeys(benchSeries)
-	s := newStore(b, Config{})
-	const step = 10 * sec
-	phase := func(j int) int64 { return int64(j) * 7919 % step }
-	for j, k := range keys {
-		mustAdd(b, s, k, t0+phase(j), 1)
-	}
+	keys, s, phase := primedStore(b, benchSeries)
 	var worker atomic.Int64
 	g := runtime.GOMAXPROCS(0)
 	b.ReportAllocs()
@@ -142,7 +140,7 @@ func BenchmarkAddParallel(b *testing.B) {
 		for pb.Next() {
 			j := w + (i%(benchSeries/g))*g
 			r := int64(i/(benchSeries/g)) + 1
-			if err := s.Add(keys[j], t0+r*step+phase(j), float64(r%50), nil); err != nil {
+			if err := s.Add(keys[j], t0+r*benchStep+phase(j), float64(r%50), nil); err != nil {
 				b.Error(err)
 				return
 			}
@@ -154,13 +152,7 @@ func BenchmarkAddParallel(b *testing.B) {
 // BenchmarkAddBatchParallel is BenchmarkAddParallel through AddBatch, 128
 // points a batch; ns/op is per point.
 func BenchmarkAddBatchParallel(b *testing.B) {
-	keys := benchKeys(benchSeries)
-	s := newStore(b, Config{})
-	const step = 10 * sec
-	phase := func(j int) int64 { return int64(j) * 7919 % step }
-	for j, k := range keys {
-		mustAdd(b, s, k, t0+phase(j), 1)
-	}
+	keys, s, phase := primedStore(b, benchSeries)
 	var worker atomic.Int64
 	g := runtime.GOMAXPROCS(0)
 	b.ReportAllocs()
@@ -178,7 +170,7 @@ func BenchmarkAddBatchParallel(b *testing.B) {
 			return true
 		}
 		for pb.Next() {
-			es = append(es, Entry{Key: keys[j], TS: t0 + r*step + phase(j), Value: float64(r % 50)})
+			es = append(es, Entry{Key: keys[j], TS: t0 + r*benchStep + phase(j), Value: float64(r % 50)})
 			if j += g; j >= benchSeries {
 				j, r = w, r+1
 			}
