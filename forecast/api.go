@@ -3,6 +3,7 @@ package forecast
 // This file holds the types engines, projections and rules share.
 
 import (
+	"math"
 	"time"
 
 	"github.com/headroom-dev/headroom/state"
@@ -20,26 +21,77 @@ type Engine interface {
 // Forecast is a fitted predictive distribution for one series, relative to
 // the view's End (the origin). Times are seconds after the origin.
 type Forecast struct {
-	Engine  string
-	Origin  int64   // unix ms
-	Level   float64 // fitted mean at the origin
-	Slope   float64 // per second
-	Since   int64   // unix ms: start of the current regime
-	Cycle   time.Duration
-	Support int     // composite points the fit rests on
-	Sigma   float64 // residual standard deviation of one observation
+	Engine string
+	Origin int64   // unix ms
+	Level  float64 // fitted mean at the origin
+	Slope  float64 // per second
+	Since  int64   // unix ms: start of the current regime
+	// Cycle is the period of the seasonal component, 0 without one;
+	// Cycle2 a second, longer period folded into the same component (a
+	// weekly pattern on top of a daily one), 0 without one.
+	Cycle, Cycle2 time.Duration
+	// Autocorrelation of the detrended history at the lag of Cycle: the
+	// evidence for the cycle; 0 without one.
+	Autocorrelation float64
+	// Season is the seasonal component of periodic engines: offsets added
+	// to the straight-line mean, Season[k] at phase position k, positions
+	// SeasonStep seconds apart and wrapping around after len(Season). The
+	// origin sits at the fractional position SeasonAt; between positions
+	// the offset is interpolated linearly. Nil without a cycle. The slice
+	// may belong to the Scratch of the Fit that made it and is then valid
+	// until that Scratch is used again.
+	Season     []float64
+	SeasonStep float64 // seconds
+	SeasonAt   float64
+	// Variance of the estimated seasonal offsets, added to every forecast
+	// step's variance.
+	VarSeason float64
+	Support   int     // composite points the fit rests on
+	Sigma     float64 // residual standard deviation of one observation
 	// Parameter uncertainty of the level and slope (variance, covariance),
 	// already scaled by Sigma².
 	VarLevel, CovLevelSlope, VarSlope float64
 	// Extra variance while the series is in transition between regimes.
 	Transition float64
+	// Diffusion is variance per second of horizon from a level that
+	// wanders (a random-walk part of the noise): it adds Diffusion·dt.
+	Diffusion float64
 	// Scale of the lower and upper band relative to the symmetric normal
 	// band; 1 and 1 until calibration says otherwise.
 	ScaleLower, ScaleUpper float64
 }
 
 // Mean is the forecast mean dt seconds after the origin.
-func (f *Forecast) Mean(dt float64) float64 { return f.Level + f.Slope*dt }
+func (f *Forecast) Mean(dt float64) float64 {
+	m := f.Level + f.Slope*dt
+	if len(f.Season) > 0 {
+		m += f.Seasonal(dt)
+	}
+	return m
+}
+
+// Seasonal is the seasonal offset dt seconds after the origin, 0 without a
+// cycle.
+func (f *Forecast) Seasonal(dt float64) float64 {
+	n := len(f.Season)
+	if n == 0 || !(f.SeasonStep > 0) {
+		return 0
+	}
+	p := math.Mod(f.SeasonAt+dt/f.SeasonStep, float64(n))
+	if p < 0 {
+		p += float64(n)
+	}
+	if math.IsNaN(p) {
+		return 0
+	}
+	i := int(p)
+	fr := p - float64(i)
+	i %= n
+	return f.Season[i]*(1-fr) + f.Season[(i+1)%n]*fr
+}
+
+// Periodic reports whether the forecast has a seasonal component.
+func (f *Forecast) Periodic() bool { return len(f.Season) > 0 && f.SeasonStep > 0 }
 
 // Point is one forecast step.
 type Point struct {

@@ -9,7 +9,8 @@ import (
 // origin: the noise of an observation, the uncertainty of the fitted level
 // and slope carried to dt, and the transition variance.
 func (f *Forecast) Var(dt float64) float64 {
-	v := f.Sigma*f.Sigma + f.VarLevel + 2*dt*f.CovLevelSlope + dt*dt*f.VarSlope + f.Transition
+	v := f.Sigma*f.Sigma + f.VarLevel + 2*dt*f.CovLevelSlope + dt*dt*f.VarSlope + f.Transition +
+		f.VarSeason + f.Diffusion*max(dt, 0)
 	// The parameter part is a quadratic form of a covariance matrix and so
 	// never negative; rounding can make it so, the observation noise cannot.
 	return max(v, f.Sigma*f.Sigma, 0)

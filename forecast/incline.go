@@ -164,10 +164,11 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 // finite reports whether every number of f is finite and every variance
 // non-negative.
 func (f *Forecast) finite() bool {
-	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition} {
+	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition, f.VarSeason, f.Diffusion, f.Autocorrelation} {
 		if math.IsNaN(x) || math.IsInf(x, 0) {
 			return false
 		}
 	}
-	return f.Sigma >= 0 && f.VarLevel >= 0 && f.VarSlope >= 0 && f.Transition >= 0
+	return f.Sigma >= 0 && f.VarLevel >= 0 && f.VarSlope >= 0 && f.Transition >= 0 &&
+		f.VarSeason >= 0 && f.Diffusion >= 0
 }

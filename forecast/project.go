@@ -27,8 +27,12 @@ func Project(f *Forecast, r *Rule) Projection {
 	o := outlook{f: f, d: float64(r.Direction), th: r.Threshold}
 	p.Probability = o.probability(horizon)
 
-	// The mean: analytic.
+	// The mean: analytic for a straight line, a scan for a cycle.
 	switch gap := o.th - f.Level; {
+	case f.Periodic():
+		if dt, ok := o.crossing(0, span); ok {
+			p.ETA = at(f.Origin, dt)
+		}
 	case o.d*-gap >= 0:
 		p.ETA = f.Origin
 	case o.d*f.Slope > 0:
@@ -82,10 +86,15 @@ func (o *outlook) margin(dt float64) float64 {
 
 // probability maximises the breach probability over [0, horizon].
 func (o *outlook) probability(horizon float64) float64 {
-	const steps = 32
+	// A straight-line mean gives a margin with one maximum; a cycle needs
+	// a grid fine enough to catch each of its peaks.
+	steps := 32
+	if o.f.Periodic() {
+		steps = int(min(max(math.Ceil(2*horizon/o.f.SeasonStep), 32), 1024))
+	}
 	best, bj := math.Inf(-1), 0
 	for j := 0; j <= steps; j++ {
-		if m := o.margin(horizon * float64(j) / steps); m > best {
+		if m := o.margin(horizon * float64(j) / float64(steps)); m > best {
 			best, bj = m, j
 		}
 	}
@@ -94,8 +103,8 @@ func (o *outlook) probability(horizon float64) float64 {
 	}
 	// Golden-section search around the best grid point; the margin is
 	// smooth, and between neighbouring grid points it has one maximum.
-	a := horizon * float64(max(bj-1, 0)) / steps
-	b := horizon * float64(min(bj+1, steps)) / steps
+	a := horizon * float64(max(bj-1, 0)) / float64(steps)
+	b := horizon * float64(min(bj+1, steps)) / float64(steps)
 	const g = 0.6180339887498949 // (√5−1)/2
 	c, d := b-g*(b-a), a+g*(b-a)
 	mc, md := o.margin(c), o.margin(d)
@@ -131,12 +140,15 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 	if beyond(0) {
 		return 0, true
 	}
+	if f.Periodic() {
+		return scanCrossing(beyond, span, f.SeasonStep/4)
+	}
 	zs := z * f.scale(z > 0)
 	z2 := zs * zs
 	c0, b := o.th-f.Level, f.Slope
-	A := f.Sigma*f.Sigma + f.VarLevel + f.Transition
+	A := f.Sigma*f.Sigma + f.VarLevel + f.Transition + f.VarSeason
 	alpha := z2*f.VarSlope - b*b
-	beta := 2*z2*f.CovLevelSlope + 2*c0*b
+	beta := 2*z2*f.CovLevelSlope + z2*f.Diffusion + 2*c0*b
 	gamma := z2*A - c0*c0
 	r1, r2, n := quadRoots(alpha, beta, gamma)
 	roots := [2]float64{r1, r2}
@@ -168,6 +180,40 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 		}
 	}
 	return hi, true
+}
+
+// scanCrossing finds the first dt in (0, span] where beyond holds when the
+// mean is not a straight line: it steps through the span no coarser than
+// step (at most 4096 steps) and bisects the first step that reaches beyond.
+// A crossing and return inside one step can be missed; the step is a
+// fraction of the seasonal resolution, finer than the cycle itself moves.
+func scanCrossing(beyond func(float64) bool, span, step float64) (float64, bool) {
+	if !(span > 0) {
+		return 0, false
+	}
+	n := 64
+	if step > 0 {
+		n = int(min(max(math.Ceil(span/step), 64), 4096))
+	}
+	prev := 0.0
+	for i := 1; i <= n; i++ {
+		t := span * float64(i) / float64(n)
+		if !beyond(t) {
+			prev = t
+			continue
+		}
+		lo, hi := prev, t
+		for range 60 {
+			mid := (lo + hi) / 2
+			if beyond(mid) {
+				hi = mid
+			} else {
+				lo = mid
+			}
+		}
+		return hi, true
+	}
+	return 0, false
 }
 
 // quadRoots returns the real roots of a·t² + b·t + c = 0 in ascending

@@ -120,11 +120,11 @@ func TestEngines(t *testing.T) {
 	}
 	v := weekView(t)
 	for _, override := range []string{"", "incline", "nope"} {
-		if e := Choose(v, override); e == nil || e.Name() != "incline" {
+		if e := Choose(v, nil, nil, override); e == nil || e.Name() != "incline" {
 			t.Errorf("Choose(%q) = %v", override, e)
 		}
 	}
-	if e := Choose(nil, ""); e == nil {
+	if e := Choose(nil, nil, nil, ""); e == nil {
 		t.Error("Choose(nil) = nil")
 	}
 }

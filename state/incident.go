@@ -41,4 +41,27 @@ type Memo struct {
 	Rules     uint64 // bitmask of the rules whose selector matches the series
 	RulesSet  bool   // Rules has been computed
 	Published Published
+	Cycle     CycleMemo
+	Calib     Calibration
+}
+
+// CycleMemo caches the cycle detection of a series, which package forecast
+// runs at most once per new hourly bucket.
+type CycleMemo struct {
+	At      int64   // unix ms: end of the newest hourly bucket detection saw; 0 before the first
+	Period  int32   // seconds; 0 when no cycle was found
+	Period2 int32   // seconds of a second, longer cycle; 0 when none
+	ACF     float32 // autocorrelation at Period
+}
+
+// Calibration keeps the bands of a series honest: scale factors for each
+// side of the 80 % and 95 % bands, adjusted online from how past forecasts
+// fared against what then happened, and the forecasts still waiting for
+// their actual values. Package forecast maintains it.
+type Calibration struct {
+	Scale [4]float32 // lower 80, upper 80, lower 95, upper 95; 0 counts as 1
+	Due   [2]int64   // unix ms when a pending check's actual is due; 0 for none
+	Mean  [2]float32 // the checked forecast's mean
+	SD    [2]float32 // and its standard deviation
+	Seen  uint32     // checks scored so far
 }

@@ -267,7 +267,7 @@ func (w *Worker) evaluate(se *state.Series) {
 		// A handful of buckets gives forecasts too wild to be worth a record.
 		return
 	}
-	eng := forecast.Choose(&w.view, p.cfg.Engine)
+	eng := forecast.Choose(&w.view, w.sc, nil, p.cfg.Engine)
 	if !eng.Fit(&w.view, w.sc, &w.fc) {
 		return
 	}
