@@ -56,9 +56,12 @@ type Forecast struct {
 	// Diffusion is variance per second of horizon from a level that
 	// wanders (a random-walk part of the noise): it adds Diffusion·dt.
 	Diffusion float64
-	// Scale of the lower and upper band relative to the symmetric normal
-	// band; 1 and 1 until calibration says otherwise.
+	// Scale of the lower and upper 80 % band relative to the symmetric
+	// normal band; 1 and 1 until calibration says otherwise.
 	ScaleLower, ScaleUpper float64
+	// The same for the 95 % band; 0 means the 80 % scale. Quantiles between
+	// the two levels interpolate the scale, beyond them keep the nearer.
+	ScaleLower95, ScaleUpper95 float64
 }
 
 // Mean is the forecast mean dt seconds after the origin.

@@ -24,7 +24,7 @@ func (f *Forecast) Quantile(dt, p float64) float64 {
 	if z == 0 {
 		return f.Mean(dt)
 	}
-	return f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scale(z > 0)
+	return f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scaleAt(z)
 }
 
 // Band is the central interval holding the fraction level (such as 0.8) of
@@ -42,6 +42,7 @@ func (f *Forecast) Points(horizon time.Duration, steps int, dst []Point) []Point
 	ms := horizon.Milliseconds()
 	z80, z95 := normQuantile(0.9), normQuantile(0.975)
 	lo, hi := f.scale(false), f.scale(true)
+	lo95, hi95 := f.scale95(false), f.scale95(true)
 	for i := 1; i <= steps; i++ {
 		off := int64(math.Round(float64(ms) * float64(i) / float64(steps)))
 		dt := float64(off) / 1000
@@ -50,7 +51,7 @@ func (f *Forecast) Points(horizon time.Duration, steps int, dst []Point) []Point
 			T:       f.Origin + off,
 			Mean:    m,
 			Lower80: m - z80*sd*lo, Upper80: m + z80*sd*hi,
-			Lower95: m - z95*sd*lo, Upper95: m + z95*sd*hi,
+			Lower95: m - z95*sd*lo95, Upper95: m + z95*sd*hi95,
 		})
 	}
 	return dst
@@ -67,6 +68,35 @@ func (f *Forecast) cdf(dt, y float64) float64 {
 		return 1
 	}
 	return normCDF((y - m) / sd)
+}
+
+// scale95 returns the 95 % band scale of the upper or the lower half.
+func (f *Forecast) scale95(upper bool) float64 {
+	s := f.ScaleLower95
+	if upper {
+		s = f.ScaleUpper95
+	}
+	if !(s > 0) || math.IsInf(s, 1) {
+		return f.scale(upper)
+	}
+	return s
+}
+
+// scaleAt returns the scale of the quantile z standard deviations from the
+// mean: the 80 % scale up to its quantile, the 95 % scale from its own,
+// linear in between.
+func (f *Forecast) scaleAt(z float64) float64 {
+	upper := z > 0
+	a := math.Abs(z)
+	const z80, z95 = 1.2815515655446004, 1.959963984540054 // normQuantile(0.9), (0.975)
+	switch {
+	case a <= z80:
+		return f.scale(upper)
+	case a >= z95:
+		return f.scale95(upper)
+	}
+	w := (a - z80) / (z95 - z80)
+	return f.scale(upper)*(1-w) + f.scale95(upper)*w
 }
 
 // scale returns the band scale of the upper or the lower half.

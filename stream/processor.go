@@ -41,6 +41,9 @@ type Config struct {
 	Now func() time.Time
 	// NewID makes incident and event ids; default random UUIDs.
 	NewID func() [16]byte
+	// Calibration tunes the online calibration of the bands; the zero
+	// value takes its defaults.
+	Calibration forecast.Calibration
 }
 
 // Stats counts what a Processor has done since it started.
@@ -267,10 +270,23 @@ func (w *Worker) evaluate(se *state.Series) {
 		// A handful of buckets gives forecasts too wild to be worth a record.
 		return
 	}
-	eng := forecast.Choose(&w.view, w.sc, nil, p.cfg.Engine)
+	cyc := forecast.Cycles{
+		At:      memo.Cycle.At,
+		Period:  time.Duration(memo.Cycle.Period) * time.Second,
+		Period2: time.Duration(memo.Cycle.Period2) * time.Second,
+		ACF:     float64(memo.Cycle.ACF),
+	}
+	eng := forecast.Choose(&w.view, w.sc, &cyc, p.cfg.Engine)
+	memo.Cycle = state.CycleMemo{
+		At:      cyc.At,
+		Period:  int32(min(cyc.Period/time.Second, math.MaxInt32)),
+		Period2: int32(min(cyc.Period2/time.Second, math.MaxInt32)),
+		ACF:     float32(cyc.ACF),
+	}
 	if !eng.Fit(&w.view, w.sc, &w.fc) {
 		return
 	}
+	p.cfg.Calibration.Apply(&memo.Calib, &w.view, &w.fc)
 	w.publishForecast(se, memo)
 	if memo.Rules == 0 {
 		return
@@ -286,6 +302,10 @@ func (w *Worker) evaluate(se *state.Series) {
 			if !e.Fit(&w.view, w.sc, &w.alt) {
 				continue
 			}
+			// The series' calibration speaks of its errors, whichever
+			// engine forecasts them.
+			w.alt.ScaleLower, w.alt.ScaleUpper = w.fc.ScaleLower, w.fc.ScaleUpper
+			w.alt.ScaleLower95, w.alt.ScaleUpper95 = w.fc.ScaleLower95, w.fc.ScaleUpper95
 			fc = &w.alt
 		}
 		proj := forecast.Project(fc, r)
@@ -348,6 +368,8 @@ func (w *Worker) publishForecast(se *state.Series, memo *state.Memo) {
 		TrendPerHour: fc.Slope * 3600,
 		Since:        formatMs(fc.Since),
 		CycleSeconds: fc.Cycle.Seconds(),
+		Cycle2:       fc.Cycle2.Seconds(),
+		ACF:          round4(fc.Autocorrelation),
 		Support:      fc.Support,
 		Sigma:        fc.Sigma,
 		Points:       make([]ForecastPoint, len(w.pts)),

@@ -22,8 +22,12 @@ type ForecastRecord struct {
 	TrendPerHour float64 `json:"trend_per_hour" msgpack:"trend_per_hour"`
 	Since        string  `json:"since,omitempty" msgpack:"since,omitempty"`
 	CycleSeconds float64 `json:"cycle_seconds,omitempty" msgpack:"cycle_seconds,omitempty"`
-	Support      int     `json:"support" msgpack:"support"`
-	Sigma        float64 `json:"sigma" msgpack:"sigma"`
+	// A second, longer cycle folded into the seasonal pattern, and the
+	// autocorrelation at the first cycle's lag: the evidence for it.
+	Cycle2  float64 `json:"second_cycle_seconds,omitempty" msgpack:"second_cycle_seconds,omitempty"`
+	ACF     float64 `json:"autocorrelation,omitempty" msgpack:"autocorrelation,omitempty"`
+	Support int     `json:"support" msgpack:"support"`
+	Sigma   float64 `json:"sigma" msgpack:"sigma"`
 
 	Points []ForecastPoint `json:"points" msgpack:"points"`
 }
