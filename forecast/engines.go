@@ -8,7 +8,7 @@ import (
 
 // Engines returns the available engines, a new slice on every call.
 func Engines() []Engine {
-	return []Engine{Incline{}}
+	return []Engine{Incline{}, Tide{}}
 }
 
 // Lookup returns the engine with this name.
@@ -17,6 +17,8 @@ func Lookup(name string) (Engine, bool) {
 	switch name {
 	case Incline{}.Name():
 		return Incline{}, true
+	case Tide{}.Name():
+		return Tide{}, true
 	}
 	return nil, false
 }
@@ -30,15 +32,41 @@ type Cycles struct {
 }
 
 // Choose picks the engine for a series: the one named by override when that
-// names an engine, otherwise the best for the history. c caches cycle
-// detection between calls for one series (nil detects afresh); Choose
-// refreshes it when the history has moved on. For now the choice is always
-// incline.
+// names an engine, otherwise the best for the history: Tide when the
+// history has a cycle that Tide can fit, Incline otherwise.
+//
+// c caches cycle detection between calls for one series (nil detects
+// afresh). Choose runs DetectCycles only when c.At differs from the end of
+// v's newest hourly bucket, that is once per new hourly bucket, and stores
+// the result in *c. The Tide it returns is a *Tide held in sc, valid until
+// sc is passed to Choose again, so that Choose allocates nothing in steady
+// state; a nil sc allocates.
 func Choose(v *state.View, sc *Scratch, c *Cycles, override string) Engine {
 	if override != "" {
 		if e, ok := Lookup(override); ok {
 			return e
 		}
 	}
-	return Incline{}
+	if v == nil {
+		return Incline{}
+	}
+	if sc == nil {
+		sc = NewScratch()
+	}
+	var fresh Cycles
+	if c == nil {
+		fresh = DetectCycles(v, sc)
+		c = &fresh
+	} else if c.At != cyclesAt(v) {
+		*c = DetectCycles(v, sc)
+	}
+	if c.Period <= 0 {
+		return Incline{}
+	}
+	t := &sc.tide
+	*t = Tide{Cycles: *c}
+	if !t.fits(v) {
+		return Incline{}
+	}
+	return t
 }

@@ -53,6 +53,10 @@ type Incline struct {
 	// its slope as the prior for the next; shorter regimes lend zero.
 	// Default 6h.
 	PriorSpan time.Duration
+	// SlopeEvidence is how many squared standard errors a slope must stand
+	// from zero to be extrapolated at half its size. Default 64; negative
+	// turns the tempering off.
+	SlopeEvidence float64
 }
 
 // minPoints is the fewest usable buckets Fit works with.
@@ -78,6 +82,12 @@ func (e Incline) params() Incline {
 	}
 	if e.PriorSpan <= 0 {
 		e.PriorSpan = 6 * time.Hour
+	}
+	switch {
+	case e.SlopeEvidence == 0 || math.IsNaN(e.SlopeEvidence):
+		e.SlopeEvidence = 64
+	case e.SlopeEvidence < 0:
+		e.SlopeEvidence = 0
 	}
 	return e
 }
@@ -109,6 +119,7 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 	// Observation noise: a bucket of the newest resolution.
 	sigma2 := fit.phiGroup * sc.vnew
 	b, vb := fit.b, fit.varB
+	inherited := false // the slope leans on the previous regime's
 	if reg.prev >= 0 && vb > 0 {
 		// Prior on the slope of a regime that follows a changepoint.
 		mu := -sc.trend // a real slope of zero, in detrended units
@@ -117,6 +128,7 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 		if pb, pv, span, ok := sc.lineLS(reg.prev, reg.lo); ok && span >= p.PriorSpan.Hours() {
 			mu = pb
 			tau2 += pv
+			inherited = true
 		}
 		if tau2 > 0 {
 			post := 1 / (1/vb + 1/tau2)
@@ -125,6 +137,18 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 		}
 	}
 	level := fit.ym - b*fit.xm // at x = 0, the origin
+	// Extrapolate a slope only as far as the evidence for it goes: one
+	// that is t standard errors from zero is multiplied by
+	// t²/(t²+SlopeEvidence). The level at the origin stays where the fit
+	// put it; only the extrapolation is tempered. Wandering metrics have
+	// local slopes that rarely last a day, a filling volume's slope stands
+	// hundreds of standard errors clear. A slope that carries on from a
+	// long previous regime has that regime's evidence behind it already.
+	if k := p.SlopeEvidence; vb > 0 && !inherited {
+		B := b + sc.trend
+		B2 := B * B
+		b = B*B2/(B2+k*vb) - sc.trend
+	}
 	varLevel := fit.phiPar/fit.sumW + fit.xm*fit.xm*vb
 	cov := -fit.xm * vb
 

@@ -1,9 +1,12 @@
 package forecast
 
 import (
+	"math"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/headroom-dev/headroom/state"
 )
 
 func TestParseRules(t *testing.T) {
@@ -104,7 +107,7 @@ func TestDirection(t *testing.T) {
 
 func TestEngines(t *testing.T) {
 	es := Engines()
-	if len(es) != 1 || es[0].Name() != "incline" {
+	if len(es) != 2 || es[0].Name() != "incline" || es[1].Name() != "tide" {
 		t.Fatalf("engines %v", es)
 	}
 	for _, e := range es {
@@ -119,12 +122,48 @@ func TestEngines(t *testing.T) {
 		t.Error("Lookup of the empty name succeeded")
 	}
 	v := weekView(t)
-	for _, override := range []string{"", "incline", "nope"} {
-		if e := Choose(v, nil, nil, override); e == nil || e.Name() != "incline" {
-			t.Errorf("Choose(%q) = %v", override, e)
+	for _, tc := range []struct{ override, want string }{{"", "incline"}, {"incline", "incline"}, {"nope", "incline"}, {"tide", "tide"}} {
+		if e := Choose(v, nil, nil, tc.override); e == nil || e.Name() != tc.want {
+			t.Errorf("Choose(%q) = %v, want %s", tc.override, e, tc.want)
 		}
 	}
 	if e := Choose(nil, nil, nil, ""); e == nil {
 		t.Error("Choose(nil) = nil")
+	}
+}
+
+// Choose on a daily cycle (invented data) picks Tide, caches detection
+// per hourly bucket and allocates nothing in steady state.
+func TestChooseCycle(t *testing.T) {
+	const minutes = 14 * 1440
+	s := newSeries(minutes, 0.5, 9, func(i int) float64 { return 10 + 2*math.Sin(2*math.Pi*float64(i)/1440) })
+	var v state.View
+	s.view(s.end(minutes-1), &v)
+	sc := NewScratch()
+	var c Cycles
+	e := Choose(&v, sc, &c, "")
+	td, ok := e.(*Tide)
+	if !ok || td.Cycles != c || c.Period != 24*time.Hour || c.At != s.end(minutes-1)/hour*hour {
+		t.Fatalf("Choose = %#v, cycles %+v", e, c)
+	}
+	var f Forecast
+	if !e.Fit(&v, sc, &f) || f.Engine != "tide" {
+		t.Fatalf("fit %+v", f)
+	}
+	// A cached detection for this hour is used as it is, even if wrong.
+	stale := Cycles{At: c.At}
+	if e := Choose(&v, sc, &stale, ""); e.Name() != "incline" || stale.Period != 0 {
+		t.Errorf("cached no-cycle: %v, %+v", e, stale)
+	}
+	// An old one is refreshed.
+	old := Cycles{At: c.At - hour}
+	if e := Choose(&v, sc, &old, ""); e.Name() != "tide" || old != c {
+		t.Errorf("stale cache: %v, %+v", e, old)
+	}
+	if n := testing.AllocsPerRun(100, func() { Choose(&v, sc, &c, "") }); n != 0 {
+		t.Errorf("Choose allocates %v times in steady state", n)
+	}
+	if n := testing.AllocsPerRun(100, func() { Lookup("tide") }); n != 0 {
+		t.Errorf("Lookup allocates %v times", n)
 	}
 }

@@ -22,6 +22,10 @@ type Scratch struct {
 	// standardized variance of one bucket of the newest resolution, and the
 	// variance inflation of its noise from serial correlation.
 	ref, scale, trend, vnew, kappa float64
+
+	// Cycle detection and the seasonal engine (cycle.go, tide.go).
+	cyc  cycleScratch
+	tide Tide // what Choose returns, so that it need not allocate
 }
 
 // NewScratch returns an empty Scratch; its buffers grow to the largest view
