@@ -56,6 +56,10 @@ type Forecast struct {
 	// Diffusion is variance per second of horizon from a level that
 	// wanders (a random-walk part of the noise): it adds Diffusion·dt.
 	Diffusion float64
+	// A trend seen for Age seconds is not taken to last much longer
+	// unseen: beyond Age the variance grows by Persist·(dt − Age)², the
+	// doubt whether the slope holds on. Persist 0 turns this off.
+	Age, Persist float64
 	// Scale of the lower and upper 80 % band relative to the symmetric
 	// normal band; 1 and 1 until calibration says otherwise.
 	ScaleLower, ScaleUpper float64
@@ -126,7 +130,11 @@ type Rule struct {
 	// How long the projection must hold before an incident opens, and how
 	// long it must fail before the incident resolves (event time).
 	Confirm, Release time.Duration
-	Engine           string // engine override; empty chooses automatically
+	// Warmup is how much history a series needs before an incident opens
+	// on it: until a daily cycle has been seen to repeat, its rising half
+	// looks like a trend. Default 72h; negative means none.
+	Warmup time.Duration
+	Engine string // engine override; empty chooses automatically
 }
 
 // Projection is the breach outlook of one forecast under one rule.

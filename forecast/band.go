@@ -11,6 +11,9 @@ import (
 func (f *Forecast) Var(dt float64) float64 {
 	v := f.Sigma*f.Sigma + f.VarLevel + 2*dt*f.CovLevelSlope + dt*dt*f.VarSlope + f.Transition +
 		f.VarSeason + f.Diffusion*max(dt, 0)
+	if f.Persist > 0 && dt > f.Age {
+		v += f.Persist * (dt - f.Age) * (dt - f.Age)
+	}
 	// The parameter part is a quadratic form of a covariance matrix and so
 	// never negative; rounding can make it so, the observation noise cannot.
 	return max(v, f.Sigma*f.Sigma, 0)

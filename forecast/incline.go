@@ -53,6 +53,13 @@ type Incline struct {
 	// its slope as the prior for the next; shorter regimes lend zero.
 	// Default 6h.
 	PriorSpan time.Duration
+	// Persist is the doubt, beyond the age of the current regime, that
+	// its slope holds on: the standard deviation of the slope from then on
+	// relative to the slope itself, squared. Default 4, which keeps a trend
+	// from opening an incident on extrapolation beyond its age alone
+	// (the probability then stays below 0.7); negative turns it
+	// off.
+	Persist float64
 	// SlopeEvidence is how many squared standard errors a slope must stand
 	// from zero to be extrapolated at half its size. Default 64; negative
 	// turns the tempering off.
@@ -82,6 +89,12 @@ func (e Incline) params() Incline {
 	}
 	if e.PriorSpan <= 0 {
 		e.PriorSpan = 6 * time.Hour
+	}
+	switch {
+	case e.Persist == 0 || math.IsNaN(e.Persist):
+		e.Persist = 4
+	case e.Persist < 0:
+		e.Persist = 0
 	}
 	switch {
 	case e.SlopeEvidence == 0 || math.IsNaN(e.SlopeEvidence):
@@ -178,6 +191,9 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 		ScaleLower:    1,
 		ScaleUpper:    1,
 	}
+	// A trend is believed about as far ahead as it has been seen.
+	f.Age = float64(f.Origin-f.Since) / 1000
+	f.Persist = p.Persist * f.Slope * f.Slope
 	if !f.finite() {
 		*f = Forecast{}
 		return false
@@ -188,7 +204,7 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 // finite reports whether every number of f is finite and every variance
 // non-negative.
 func (f *Forecast) finite() bool {
-	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition, f.VarSeason, f.Diffusion, f.Autocorrelation} {
+	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition, f.VarSeason, f.Diffusion, f.Autocorrelation, f.Age, f.Persist} {
 		if math.IsNaN(x) || math.IsInf(x, 0) {
 			return false
 		}

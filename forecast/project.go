@@ -140,8 +140,12 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 	if beyond(0) {
 		return 0, true
 	}
-	if f.Periodic() {
+	switch {
+	case f.Periodic():
 		return scanCrossing(beyond, span, f.SeasonStep/4)
+	case f.Persist > 0 && f.Age < span:
+		// The variance is piecewise: no single quadratic.
+		return scanCrossing(beyond, span, span/256)
 	}
 	zs := z * f.scale(z > 0)
 	z2 := zs * zs

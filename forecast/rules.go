@@ -16,10 +16,11 @@ const (
 	DefaultConfirm = 10 * time.Minute
 	DefaultRelease = 10 * time.Minute
 	DefaultHorizon = 24 * time.Hour
+	DefaultWarmup  = 72 * time.Hour
 )
 
 // Defaults fills the zero fields of r: OpenAt 0.8, CloseAt 0.5, Confirm and
-// Release ten minutes, Horizon 24 hours.
+// Release ten minutes, Horizon 24 hours, Warmup 72 hours.
 func (r *Rule) Defaults() {
 	if r.OpenAt == 0 {
 		r.OpenAt = DefaultOpenAt
@@ -35,6 +36,9 @@ func (r *Rule) Defaults() {
 	}
 	if r.Horizon == 0 {
 		r.Horizon = DefaultHorizon
+	}
+	if r.Warmup == 0 {
+		r.Warmup = DefaultWarmup
 	}
 }
 
@@ -53,6 +57,7 @@ type ruleJSON struct {
 	CloseAt   *float64 `json:"close_at"`
 	Confirm   string   `json:"confirm"`
 	Release   string   `json:"release"`
+	Warmup    string   `json:"warmup"`
 	Engine    string   `json:"engine"`
 }
 
@@ -61,7 +66,7 @@ type ruleJSON struct {
 //	{"rules": [{"name": "disk-full", "match": "disk_used_ratio,mount=/data*",
 //	  "threshold": 0.9, "direction": "above", "horizon": "24h",
 //	  "open_at": 0.8, "close_at": 0.5, "confirm": "10m", "release": "10m",
-//	  "engine": ""}]}
+//	  "warmup": "72h", "engine": ""}]}
 //
 // name, threshold and direction are required; the other fields default as
 // in Rule.Defaults, which has been applied to the rules returned. Durations
@@ -133,6 +138,7 @@ func (j *ruleJSON) rule() (Rule, error) {
 		{"horizon", j.Horizon, &r.Horizon},
 		{"confirm", j.Confirm, &r.Confirm},
 		{"release", j.Release, &r.Release},
+		{"warmup", j.Warmup, &r.Warmup},
 	}
 	for _, d := range durs {
 		if d.text == "" {
@@ -142,8 +148,14 @@ func (j *ruleJSON) rule() (Rule, error) {
 		if err != nil {
 			return r, fmt.Errorf("%s: %w", d.field, err)
 		}
-		if v <= 0 {
+		if d.dst == &r.Warmup && v == 0 {
+			v = -1 // "0s": no warm-up at all
+		}
+		if v == 0 || v < 0 && d.dst != &r.Warmup {
 			return r, fmt.Errorf("%s: %s is not positive", d.field, d.text)
+		}
+		if v < -1 {
+			return r, fmt.Errorf("%s: %s is negative", d.field, d.text)
 		}
 		*d.dst = v
 	}

@@ -39,7 +39,7 @@ type Tide struct {
 	// Incline fits level and slope of the deseasonalized history.
 	Incline Incline
 	// MinCycles is the fewest whole cycles of history the profile rests
-	// on; at least 2, default 3.
+	// on; at least 2, default 2.
 	MinCycles int
 }
 
@@ -410,7 +410,7 @@ func (e Tide) fits(v *state.View) bool {
 // minCycles is MinCycles with its default and floor applied.
 func (e Tide) minCycles() int {
 	if e.MinCycles <= 0 {
-		return 3
+		return 2
 	}
 	return max(e.MinCycles, 2)
 }

@@ -187,7 +187,7 @@ func waitFor(t *testing.T, d time.Duration, cond func() bool) bool {
 // TestEndToEnd publishes filling series through a real embedded nats-server
 // and checks the breach lifecycle that comes back on the bus.
 func TestEndToEnd(t *testing.T) {
-	rule := forecast.Rule{Name: "volume-full", Threshold: 0.9, Direction: forecast.Above, Horizon: 6 * time.Hour}
+	rule := forecast.Rule{Name: "volume-full", Threshold: 0.9, Direction: forecast.Above, Horizon: 6 * time.Hour, Warmup: -1}
 	m, err := forecast.ParseMatch("volume_used_ratio")
 	if err != nil {
 		t.Fatal(err)

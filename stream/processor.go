@@ -65,6 +65,7 @@ type Processor struct {
 	cfg     Config
 	every   int64 // ms
 	horizon time.Duration
+	warmCap time.Duration // longest warm-up the history allows
 
 	messages, points, rejected, forecasts, breaches atomic.Uint64
 }
@@ -114,7 +115,17 @@ func NewProcessor(store *state.Store, emit Emitter, cfg Config) (*Processor, err
 	if cfg.NewID == nil {
 		cfg.NewID = func() [16]byte { return uuid.New() }
 	}
-	return &Processor{store: store, emit: emit, cfg: cfg, every: cfg.Every.Milliseconds(), horizon: cfg.Horizon}, nil
+	// A warm-up longer than the history the engines see could never end.
+	warmCap := time.Duration(0)
+	for _, l := range store.Layout() {
+		warmCap = max(warmCap, l.Width*time.Duration(l.Count))
+	}
+	if cfg.History > 0 {
+		warmCap = min(warmCap, cfg.History)
+	}
+	// The view of a series spans a little less than the store keeps.
+	warmCap = warmCap * 9 / 10
+	return &Processor{store: store, emit: emit, cfg: cfg, every: cfg.Every.Milliseconds(), horizon: cfg.Horizon, warmCap: warmCap}, nil
 }
 
 // Stats returns the counters.
@@ -309,6 +320,11 @@ func (w *Worker) evaluate(se *state.Series) {
 			fc = &w.alt
 		}
 		proj := forecast.Project(fc, r)
+		if r.Warmup > 0 && w.view.Span() < min(r.Warmup, p.warmCap).Seconds() {
+			// Too little history to tell a trend from half a cycle:
+			// nothing opens yet.
+			proj.Probability = 0
+		}
 		inc := se.Incident(uint16(i), proj.Probability >= r.OpenAt)
 		if inc == nil {
 			continue

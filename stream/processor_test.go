@@ -77,7 +77,7 @@ func volumeRule(t *testing.T) forecast.Rule {
 	if err != nil {
 		t.Fatal(err)
 	}
-	return forecast.Rule{Name: "volume-full", Match: m, Threshold: 0.9, Direction: forecast.Above, Horizon: 6 * time.Hour}
+	return forecast.Rule{Name: "volume-full", Match: m, Threshold: 0.9, Direction: forecast.Above, Horizon: 6 * time.Hour, Warmup: -1}
 }
 
 // TestSameRecordsWhateverBatching feeds the same points for three series

@@ -36,15 +36,17 @@ func demoFleet() []demoSeries {
 	return []demoSeries{
 		{
 			metric: "volume_used_ratio", labels: map[string]string{"host": "ledger-1", "mount": "/var/lib/ledger"},
-			story: "fills steadily at 3 %/h and will cross 90 %",
-			value: func(h float64, rng *rand.Rand) float64 { return 0.52 + 0.03*h + 0.004*rng.NormFloat64() },
+			story: "flat for days, filling at 3 %/h since 10 h ago; will cross 90 %",
+			value: func(h float64, rng *rand.Rand) float64 {
+				return 0.40 + 0.03*max(h+10, 0) + 0.004*rng.NormFloat64()
+			},
 		},
 		{
 			metric: "volume_used_ratio", labels: map[string]string{"host": "relay-2", "mount": "/spool"},
-			story: "fills fast, is cleaned up after 4 h, then refills slowly",
+			story: "filling at 5 %/h since 4 h ago, cleaned up at 4 h, then refills slowly",
 			value: func(h float64, rng *rand.Rand) float64 {
 				if h < 4 {
-					return 0.55 + 0.06*h + 0.004*rng.NormFloat64()
+					return 0.30 + 0.05*max(h+4, 0) + 0.004*rng.NormFloat64()
 				}
 				return 0.31 + 0.01*(h-4) + 0.004*rng.NormFloat64()
 			},
@@ -69,10 +71,14 @@ func demoFleet() []demoSeries {
 		{
 			metric: "connection_pool_in_use", labels: map[string]string{"service": "checkout"},
 			story: "grows slowly toward its limit of 100, but not within the horizon",
-			value: func(h float64, rng *rand.Rand) float64 { return 40 + 0.8*h + 1.5*rng.NormFloat64() },
+			value: func(h float64, rng *rand.Rand) float64 { return 60 + 0.2*h + 1.5*rng.NormFloat64() },
 		},
 	}
 }
+
+// demoHistory is the data sent at once before the demo plays: more than
+// the rules' warm-up, so that the fleet arrives with a past.
+const demoHistory = 84 * time.Hour
 
 func demoRules() ([]forecast.Rule, error) {
 	specs := []struct {
@@ -169,7 +175,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 		return fmt.Errorf("demo client: %w", err)
 	}
 	defer nc.Close()
-	pr := &printer{w: stdout, verbose: verbose, lastHour: map[string]int64{}}
+	pr := &printer{w: stdout, verbose: verbose, lastHour: map[string]int64{}, from: demoStart(time.Now())}
 	subjects := stream.Subjects{Prefix: stream.DefaultPrefix}
 	for _, subj := range []string{subjects.AllForecasts(), subjects.AllBreaches(), subjects.Rejected()} {
 		if _, err := nc.Subscribe(subj, pr.handle); err != nil {
@@ -194,11 +200,15 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	return nil
 }
 
+// demoStart is the data time at which the demo starts to play: a day
+// before now, on the hour.
+func demoStart(now time.Time) time.Time { return now.Add(-24 * time.Hour).Truncate(time.Hour) }
+
 // feed publishes the fleet in accelerated time, one msgpack array per tick.
 func feed(ctx context.Context, nc *nats.Conn, subject string, fleet []demoSeries, speed float64) error {
 	const step = 30 * time.Second // data time between samples
 	rng := rand.New(rand.NewPCG(7, 11))
-	start := time.Now().Add(-24 * time.Hour).Truncate(time.Hour)
+	start := demoStart(time.Now())
 	wall := time.Now()
 	tick := time.NewTicker(20 * time.Millisecond)
 	defer tick.Stop()
@@ -208,8 +218,38 @@ func feed(ctx context.Context, nc *nats.Conn, subject string, fleet []demoSeries
 		TS     int64             `msgpack:"ts"`
 		Value  float64           `msgpack:"value"`
 	}
+	// The history first, as fast as the bus takes it, in modest messages.
+	batch := make([]point, 0, 2048)
+	publish := func() error {
+		if len(batch) == 0 {
+			return nil
+		}
+		b, err := msgpack.Marshal(batch)
+		if err != nil {
+			return err
+		}
+		batch = batch[:0]
+		if err := nc.Publish(subject, b); err != nil {
+			return fmt.Errorf("publish points: %w", err)
+		}
+		return nil
+	}
+	for back := -demoHistory; back < 0; back += step {
+		ts := start.Add(back).UnixMilli()
+		for _, s := range fleet {
+			batch = append(batch, point{s.metric, s.labels, ts, s.value(back.Hours(), rng)})
+		}
+		if len(batch) >= 2000 {
+			if err := publish(); err != nil {
+				return err
+			}
+		}
+	}
+	if err := publish(); err != nil {
+		return err
+	}
+	wall = time.Now()
 	var sent time.Duration // data time published so far
-	batch := make([]point, 0, 256)
 	for {
 		select {
 		case <-ctx.Done():
@@ -224,15 +264,8 @@ func feed(ctx context.Context, nc *nats.Conn, subject string, fleet []demoSeries
 					batch = append(batch, point{s.metric, s.labels, ts, s.value(h, rng)})
 				}
 			}
-			if len(batch) == 0 {
-				continue
-			}
-			b, err := msgpack.Marshal(batch)
-			if err != nil {
+			if err := publish(); err != nil {
 				return err
-			}
-			if err := nc.Publish(subject, b); err != nil {
-				return fmt.Errorf("publish points: %w", err)
 			}
 		}
 	}
@@ -245,6 +278,7 @@ type printer struct {
 	verbose  bool
 	lastHour map[string]int64
 	counts   map[string]int
+	from     time.Time // forecasts before this are counted, not printed
 }
 
 func (p *printer) handle(m *nats.Msg) {
@@ -268,6 +302,9 @@ func (p *printer) handle(m *nats.Msg) {
 		p.counts["forecast"]++
 		at, _ := time.Parse(time.RFC3339, r.At)
 		hour := at.Unix() / 3600
+		if at.Before(p.from) {
+			return // the history sent before the demo plays
+		}
 		if !p.verbose && p.lastHour[r.Series] == hour {
 			return
 		}

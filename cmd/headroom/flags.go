@@ -24,6 +24,7 @@ type ruleFlags struct {
 	match     string
 	confirm   time.Duration
 	release   time.Duration
+	warmup    time.Duration
 	openAt    float64
 	closeAt   float64
 	engine    string
@@ -39,9 +40,10 @@ func (r *ruleFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&r.match, "match", "", "series selector of the command-line rule, e.g. 'disk_used_ratio,mount=/data*' (empty: all series)")
 	fs.DurationVar(&r.confirm, "confirm", 10*time.Minute, "how long a projection must hold before an incident opens (data time)")
 	fs.DurationVar(&r.release, "release", 10*time.Minute, "how long a projection must fail before an incident resolves (data time)")
+	fs.DurationVar(&r.warmup, "warmup", forecast.DefaultWarmup, "history a series needs before an incident opens on it (0: none)")
 	fs.Float64Var(&r.openAt, "open-at", 0.8, "breach probability at which a projection holds")
 	fs.Float64Var(&r.closeAt, "close-at", 0.5, "breach probability below which an open incident starts to resolve")
-	fs.StringVar(&r.engine, "engine", "", "force a forecast engine (incline); empty chooses per series")
+	fs.StringVar(&r.engine, "engine", "", "force a forecast engine (incline or tide); empty chooses per series")
 	fs.StringVar(&r.name, "rule-name", "cli", "name of the command-line rule")
 }
 
@@ -73,9 +75,16 @@ func (r *ruleFlags) rules() ([]forecast.Rule, error) {
 		if r.horizon <= 0 {
 			return nil, errors.New("--horizon must be positive")
 		}
+		warmup := r.warmup
+		switch {
+		case warmup < 0:
+			return nil, errors.New("--warmup must not be negative")
+		case warmup == 0:
+			warmup = -1 // none
+		}
 		out = append(out, forecast.Rule{
 			Name: r.name, Match: m, Threshold: r.threshold, Direction: dir, Horizon: r.horizon,
-			OpenAt: r.openAt, CloseAt: r.closeAt, Confirm: r.confirm, Release: r.release, Engine: r.engine,
+			OpenAt: r.openAt, CloseAt: r.closeAt, Confirm: r.confirm, Release: r.release, Warmup: warmup, Engine: r.engine,
 		})
 	} else if r.set["direction"] || r.set["match"] {
 		return nil, errors.New("--direction and --match need --threshold")

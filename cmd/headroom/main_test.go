@@ -75,8 +75,9 @@ func TestReplay(t *testing.T) {
 	in := writeFillCSV(t, 24) // crosses 0.9 at 20 h
 	out := filepath.Join(t.TempDir(), "out.jsonl")
 	var stdout, stderr bytes.Buffer
+	// A day of history: less than the default warm-up.
 	code := run(context.Background(), []string{"replay", "--in", in, "--out", out, "--horizon", "6h", "--every", "30m",
-		"--threshold", "0.9", "--direction", "above"}, &stdout, &stderr)
+		"--threshold", "0.9", "--direction", "above", "--warmup", "0"}, &stdout, &stderr)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr.String())
 	}
@@ -244,8 +245,9 @@ func (s *syncBuffer) String() string {
 // incident id throughout.
 func TestReplayCleanup(t *testing.T) {
 	var stdout, stderr bytes.Buffer
+	// The file holds less history than the default warm-up.
 	code := run(context.Background(), []string{"replay", "--in", filepath.Join("..", "..", "testdata", "volume-fill-cleanup.csv"),
-		"--out", "-", "--horizon", "6h", "--every", "5m", "--threshold", "0.9"}, &stdout, &stderr)
+		"--out", "-", "--horizon", "6h", "--every", "5m", "--threshold", "0.9", "--warmup", "0"}, &stdout, &stderr)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr.String())
 	}

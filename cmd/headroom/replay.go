@@ -21,6 +21,9 @@ import (
 )
 
 func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	if wantsScore(args) {
+		return runScore(ctx, args, stdout, stderr)
+	}
 	fs := flag.NewFlagSet("replay", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	var (
@@ -37,7 +40,8 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	fs.Usage = func() {
 		fmt.Fprintln(fs.Output(), "Usage: headroom replay --in FILE --out FILE --horizon DUR --every DUR [--threshold X --direction above|below] [--history DUR]\n\n"+
 			"Run the same engines as serve over a CSV file and write the records serve would publish:\n"+
-			"one forecast record per --every of the data's own clock, and every breach event.\n\nFlags:")
+			"one forecast record per --every of the data's own clock, and every breach event.\n"+
+			"headroom replay --score PATH (or --score --suite N) scores the engines instead: see replay --score --help.\n\nFlags:")
 		fs.PrintDefaults()
 	}
 	rf.set = set
