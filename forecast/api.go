@@ -132,7 +132,8 @@ type Rule struct {
 	Confirm, Release time.Duration
 	// Warmup is how much history a series needs before an incident opens
 	// on it: until a daily cycle has been seen to repeat, its rising half
-	// looks like a trend. Default 72h; negative means none.
+	// looks like a trend, and cycle detection needs three cycles and a
+	// few hours to settle. Default 96h; negative means none.
 	Warmup time.Duration
 	Engine string // engine override; empty chooses automatically
 }

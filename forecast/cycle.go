@@ -113,10 +113,50 @@ func (cs *cycleScratch) detectLevel(lv *state.LevelView, from, to time.Duration,
 	hi := int(min(to/w, math.MaxInt32))
 	p, p2, r := cs.detect(lv.Y, lo, hi)
 	if p > 0 {
+		p, r = cs.snap(lv.Y, p, r, w, lo, hi)
+	}
+	if p > 0 {
 		c.Period, c.ACF = time.Duration(p)*w, r
 		c.Period2 = time.Duration(p2) * w
 	}
 	return c
+}
+
+// calendar lists the periods machine metrics cycle with far more often
+// than any other (common practice: jobs run hourly, shifts and backups
+// daily, traffic follows the day and the week).
+var calendar = [...]time.Duration{
+	time.Hour, 2 * time.Hour, 3 * time.Hour, 4 * time.Hour, 6 * time.Hour, 8 * time.Hour,
+	12 * time.Hour, 24 * time.Hour, 7 * 24 * time.Hour,
+}
+
+// snap moves a period of p lags of width w, found with autocorrelation r,
+// to a calendar period within a twelfth of it whose own autocorrelation
+// (bias-corrected) is within cycleMargin of the period's: with a few
+// cycles of history, noise moves a flat peak by a lag or two, and a
+// profile a lag off misaligns with every cycle it is built from. It reads
+// the autocorrelation detect left in cs.r.
+func (cs *cycleScratch) snap(y []float64, p int, r float64, w time.Duration, lo, hi int) (int, float64) {
+	y, _ = trimNaN(y)
+	nf := float64(len(y))
+	adj := func(k int) float64 { return cs.r[k] * nf / (nf - float64(k)) }
+	if p >= len(cs.r) {
+		return p, r
+	}
+	at := time.Duration(p) * w
+	for _, c := range calendar {
+		if c == at || c%w != 0 || absDur(c-at)*12 > at {
+			continue
+		}
+		k := int(c / w)
+		if k < lo || k > hi || k >= len(cs.r) || float64(k) >= nf {
+			continue
+		}
+		if adj(k) >= adj(p)-cycleMargin {
+			return k, cs.r[k]
+		}
+	}
+	return p, r
 }
 
 // cycleLevels returns the index of the coarsest level and of the next
@@ -260,18 +300,23 @@ func (cs *cycleScratch) detect(y []float64, lo, hi int) (p, p2 int, acf float64)
 	}
 
 	// Refine on the multiples.
+	// Each multiple weighs by the pairs behind it: the bias correction
+	// of a far lag amplifies its noise as much as its value.
 	score := func(k int) float64 {
-		s, m := 0.0, 0
+		s, m := 0.0, 0.0
 		for j := k; j <= L; j += k {
-			s += adj(j)
-			m++
+			w := nf - float64(j)
+			s += adj(j) * w
+			m += w
 		}
-		return s / float64(m)
+		return s / m
 	}
 	refine := func(p int) (int, float64) {
-		w := 1
-		if 2*p <= L {
-			w = max(2, p/12)
+		w := max(2, p/12)
+		if 2*(p+w) > L {
+			// Some neighbours would rest on one lag, others on two:
+			// their scores do not compare. The local maximum stands.
+			return p, score(p)
 		}
 		bp, bs := p, score(p)
 		for k := max(p-w, lo); k <= min(p+w, hi); k++ {

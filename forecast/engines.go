@@ -58,7 +58,15 @@ func Choose(v *state.View, sc *Scratch, c *Cycles, override string) Engine {
 		fresh = DetectCycles(v, sc)
 		c = &fresh
 	} else if c.At != cyclesAt(v) {
+		old := *c
 		*c = DetectCycles(v, sc)
+		// A cycle does not drift: a period found a lag or two off the one
+		// held so far is noise moving a flat peak, and switching would
+		// misalign the profile with what the history holds.
+		if old.Period > 0 && c.Period > 0 && c.Period != old.Period &&
+			absDur(c.Period-old.Period)*12 <= old.Period {
+			c.Period = old.Period
+		}
 	}
 	if c.Period <= 0 {
 		return Incline{}
@@ -69,4 +77,11 @@ func Choose(v *state.View, sc *Scratch, c *Cycles, override string) Engine {
 		return Incline{}
 	}
 	return t
+}
+
+func absDur(d time.Duration) time.Duration {
+	if d < 0 {
+		return -d
+	}
+	return d
 }

@@ -16,11 +16,11 @@ const (
 	DefaultConfirm = 10 * time.Minute
 	DefaultRelease = 10 * time.Minute
 	DefaultHorizon = 24 * time.Hour
-	DefaultWarmup  = 72 * time.Hour
+	DefaultWarmup  = 96 * time.Hour
 )
 
 // Defaults fills the zero fields of r: OpenAt 0.8, CloseAt 0.5, Confirm and
-// Release ten minutes, Horizon 24 hours, Warmup 72 hours.
+// Release ten minutes, Horizon 24 hours, Warmup 96 hours.
 func (r *Rule) Defaults() {
 	if r.OpenAt == 0 {
 		r.OpenAt = DefaultOpenAt
@@ -66,7 +66,7 @@ type ruleJSON struct {
 //	{"rules": [{"name": "disk-full", "match": "disk_used_ratio,mount=/data*",
 //	  "threshold": 0.9, "direction": "above", "horizon": "24h",
 //	  "open_at": 0.8, "close_at": 0.5, "confirm": "10m", "release": "10m",
-//	  "warmup": "72h", "engine": ""}]}
+//	  "warmup": "96h", "engine": ""}]}
 //
 // name, threshold and direction are required; the other fields default as
 // in Rule.Defaults, which has been applied to the rules returned. Durations

@@ -78,7 +78,7 @@ func demoFleet() []demoSeries {
 
 // demoHistory is the data sent at once before the demo plays: more than
 // the rules' warm-up, so that the fleet arrives with a past.
-const demoHistory = 84 * time.Hour
+const demoHistory = 100 * time.Hour
 
 func demoRules() ([]forecast.Rule, error) {
 	specs := []struct {
