@@ -46,6 +46,7 @@ const (
 // Period ranges searched on a view: the coarsest level for cycles of
 // hours to a week, the next finer one for cycles of an hour to a few hours.
 const (
+	day                = 24 * time.Hour
 	longMin, longMax   = 3 * time.Hour, 7 * 24 * time.Hour
 	shortMin, shortMax = time.Hour, 8 * time.Hour
 )
@@ -59,6 +60,8 @@ type cycleScratch struct {
 	cnt      []int32   // prefix counts of values
 	season   []float64 // the seasonal profile handed out in Forecast.Season
 	day      []float64 // day levels for a folded second period
+	ma       []float64 // the series less a moving average
+	window   int       // when > 1, detrend by a moving average of this many points
 	dayAt    []float64 // their day indices
 	view     state.View
 }
@@ -90,6 +93,21 @@ func DetectCycles(v *state.View, sc *Scratch) Cycles {
 	}
 	c.At = levelEnd(&v.Levels[long])
 	c = sc.cyc.detectLevel(&v.Levels[long], longMin, longMax, c)
+	if c.Period == 0 {
+		// A daily cycle under slower changes (a lower weekend, a trend
+		// that bends) can hide from a straight-line detrending: try again
+		// with a day's moving average taken out.
+		lv := &v.Levels[long]
+		if w := time.Duration(lv.Width) * time.Millisecond; w > 0 && day%w == 0 && day/w >= 4 {
+			// A second look is a second chance for noise too: only a
+			// calendar period counts.
+			sc.cyc.window = int(day / w)
+			if d := sc.cyc.detectLevel(lv, longMin, day, c); onCalendar(d.Period) {
+				c = d
+			}
+			sc.cyc.window = 0
+		}
+	}
 	if c.Period > 0 && c.Period > shortMax || short < 0 {
 		return c
 	}
@@ -122,12 +140,56 @@ func (cs *cycleScratch) detectLevel(lv *state.LevelView, from, to time.Duration,
 	return c
 }
 
+// smoothOut returns y less its centred moving average over window points
+// (2×window with half-weight ends for an even window, as classical
+// decomposition does), NaN where the window does not fit or holds fewer
+// than half its values. Whatever is slower than the window goes: a
+// trend, a weekend's lower level, a level shift; a cycle of the window's
+// length or shorter stays.
+func (cs *cycleScratch) smoothOut(y []float64, window int) []float64 {
+	n := len(y)
+	cs.ma = grow(cs.ma, n)
+	out := cs.ma
+	h := window / 2
+	for t := range n {
+		out[t] = math.NaN()
+		if t < h || t+h >= n || y[t] != y[t] {
+			continue
+		}
+		s, w := 0.0, 0.0
+		for j := t - h; j <= t+h; j++ {
+			if v := y[j]; v == v {
+				f := 1.0
+				if window%2 == 0 && (j == t-h || j == t+h) {
+					f = 0.5
+				}
+				s += f * v
+				w += f
+			}
+		}
+		if w >= float64(window)/2 {
+			out[t] = y[t] - s/w
+		}
+	}
+	return out
+}
+
 // calendar lists the periods machine metrics cycle with far more often
 // than any other (common practice: jobs run hourly, shifts and backups
 // daily, traffic follows the day and the week).
 var calendar = [...]time.Duration{
 	time.Hour, 2 * time.Hour, 3 * time.Hour, 4 * time.Hour, 6 * time.Hour, 8 * time.Hour,
 	12 * time.Hour, 24 * time.Hour, 7 * 24 * time.Hour,
+}
+
+// onCalendar reports whether p is one of the calendar periods.
+func onCalendar(p time.Duration) bool {
+	for _, c := range calendar {
+		if p == c {
+			return true
+		}
+	}
+	return false
 }
 
 // snap moves a period of p lags of width w, found with autocorrelation r,
@@ -435,6 +497,9 @@ func cycleF(y, d []float64, p, m int) float64 {
 // zeros in the gaps. It reports false when nothing is left: a constant
 // series or an exact line.
 func (cs *cycleScratch) detrend(y []float64) ([]float64, bool) {
+	if cs.window > 1 {
+		y = cs.smoothOut(y, cs.window)
+	}
 	n := len(y)
 	cs.d = grow(cs.d, n)
 	cs.tmp = grow(cs.tmp, n)
