@@ -60,12 +60,19 @@ type Forecast struct {
 	// unseen: beyond Age the variance grows by Persist·(dt − Age)², the
 	// doubt whether the slope holds on. Persist 0 turns this off.
 	Age, Persist float64
-	// Scale of the lower and upper 80 % band relative to the symmetric
-	// normal band; 1 and 1 until calibration says otherwise.
+	// Band calibration. ScaleLower and ScaleUpper scale the lower and
+	// upper half of the 80 % band, relative to the normal band, at
+	// horizons up to NearAt seconds; FarLower and FarUpper at FarAt and
+	// beyond; in between the scale moves linearly in log time. FarAt 0
+	// means the near scales hold at every horizon. TailLower and
+	// TailUpper are the ratio of the 95 % band's scale to the 80 % band's
+	// on each side: the weight of the tails. Quantiles between the two
+	// levels interpolate; beyond, they keep the nearer. A scale or tail
+	// that is not positive counts as 1.
 	ScaleLower, ScaleUpper float64
-	// The same for the 95 % band; 0 means the 80 % scale. Quantiles between
-	// the two levels interpolate the scale, beyond them keep the nearer.
-	ScaleLower95, ScaleUpper95 float64
+	FarLower, FarUpper     float64
+	NearAt, FarAt          float64
+	TailLower, TailUpper   float64
 }
 
 // Mean is the forecast mean dt seconds after the origin.

@@ -20,14 +20,13 @@ func (f *Forecast) Var(dt float64) float64 {
 }
 
 // Quantile is the p-quantile of an observation dt seconds after the origin:
-// normal, with the lower half scaled by ScaleLower and the upper half by
-// ScaleUpper (a scale that is not positive counts as 1).
+// normal, each side scaled by its calibration (see Forecast).
 func (f *Forecast) Quantile(dt, p float64) float64 {
 	z := normQuantile(p)
 	if z == 0 {
 		return f.Mean(dt)
 	}
-	return f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scaleAt(z)
+	return f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scaleAt(z, dt)
 }
 
 // Band is the central interval holding the fraction level (such as 0.8) of
@@ -43,18 +42,17 @@ func (f *Forecast) Points(horizon time.Duration, steps int, dst []Point) []Point
 		return dst
 	}
 	ms := horizon.Milliseconds()
-	z80, z95 := normQuantile(0.9), normQuantile(0.975)
-	lo, hi := f.scale(false), f.scale(true)
-	lo95, hi95 := f.scale95(false), f.scale95(true)
+	tl, tu := positive(f.TailLower), positive(f.TailUpper)
 	for i := 1; i <= steps; i++ {
 		off := int64(math.Round(float64(ms) * float64(i) / float64(steps)))
 		dt := float64(off) / 1000
 		m, sd := f.Mean(dt), math.Sqrt(f.Var(dt))
+		lo, hi := f.scale(false, dt), f.scale(true, dt)
 		dst = append(dst, Point{
 			T:       f.Origin + off,
 			Mean:    m,
 			Lower80: m - z80*sd*lo, Upper80: m + z80*sd*hi,
-			Lower95: m - z95*sd*lo95, Upper95: m + z95*sd*hi95,
+			Lower95: m - z95*sd*lo*tl, Upper95: m + z95*sd*hi*tu,
 		})
 	}
 	return dst
@@ -63,7 +61,7 @@ func (f *Forecast) Points(horizon time.Duration, steps int, dst []Point) []Point
 // cdf is the predictive distribution function at y, dt seconds ahead.
 func (f *Forecast) cdf(dt, y float64) float64 {
 	m := f.Mean(dt)
-	sd := math.Sqrt(f.Var(dt)) * f.scale(y > m)
+	sd := math.Sqrt(f.Var(dt)) * f.scale(y > m, dt)
 	if sd <= 0 {
 		if y < m {
 			return 0
@@ -73,41 +71,49 @@ func (f *Forecast) cdf(dt, y float64) float64 {
 	return normCDF((y - m) / sd)
 }
 
-// scale95 returns the 95 % band scale of the upper or the lower half.
-func (f *Forecast) scale95(upper bool) float64 {
-	s := f.ScaleLower95
-	if upper {
-		s = f.ScaleUpper95
-	}
-	if !(s > 0) || math.IsInf(s, 1) {
-		return f.scale(upper)
-	}
-	return s
-}
-
 // scaleAt returns the scale of the quantile z standard deviations from the
-// mean: the 80 % scale up to its quantile, the 95 % scale from its own,
-// linear in between.
-func (f *Forecast) scaleAt(z float64) float64 {
+// mean, dt seconds ahead: the 80 % band's up to its quantile, the 95 %
+// band's from its own, linear in between.
+func (f *Forecast) scaleAt(z, dt float64) float64 {
 	upper := z > 0
+	s := f.scale(upper, dt)
 	a := math.Abs(z)
-	const z80, z95 = 1.2815515655446004, 1.959963984540054 // normQuantile(0.9), (0.975)
-	switch {
-	case a <= z80:
-		return f.scale(upper)
-	case a >= z95:
-		return f.scale95(upper)
+	if a <= z80 {
+		return s
 	}
-	w := (a - z80) / (z95 - z80)
-	return f.scale(upper)*(1-w) + f.scale95(upper)*w
+	t := positive(f.TailLower)
+	if upper {
+		t = positive(f.TailUpper)
+	}
+	w := min((a-z80)/(z95-z80), 1)
+	return s * (1 + w*(t-1))
 }
 
-// scale returns the band scale of the upper or the lower half.
-func (f *Forecast) scale(upper bool) float64 {
-	s := f.ScaleLower
+// scale returns the 80 % band scale of the upper or the lower half dt
+// seconds ahead.
+func (f *Forecast) scale(upper bool, dt float64) float64 {
+	near, far := positive(f.ScaleLower), positive(f.FarLower)
 	if upper {
-		s = f.ScaleUpper
+		near, far = positive(f.ScaleUpper), positive(f.FarUpper)
 	}
+	if !(f.FarAt > f.NearAt) || !(f.NearAt > 0) || dt <= f.NearAt || near == far {
+		return near
+	}
+	if dt >= f.FarAt {
+		return far
+	}
+	w := math.Log(dt/f.NearAt) / math.Log(f.FarAt/f.NearAt)
+	return near + w*(far-near)
+}
+
+// scaled reports whether the band scales change with the horizon.
+func (f *Forecast) scaled() bool {
+	return f.FarAt > f.NearAt && f.NearAt > 0 &&
+		(positive(f.ScaleLower) != positive(f.FarLower) || positive(f.ScaleUpper) != positive(f.FarUpper))
+}
+
+// positive returns s, or 1 when s is not a positive finite number.
+func positive(s float64) float64 {
 	if !(s > 0) || math.IsInf(s, 1) {
 		return 1
 	}

@@ -10,18 +10,24 @@ import (
 // Calibration keeps the bands of one series honest online, after adaptive
 // conformal inference (Gibbs & Candès, 2021): every so often a forecast is
 // set aside as a check; when its time comes, the value that arrived is
-// compared with each side of its 80 % and 95 % bands, and the scale of that
-// side moves up after a miss and down after a hit, in proportions that
-// settle where misses happen at the nominal rate (10 % per side of the 80 %
-// band, 2.5 % of the 95 % band). Each side has its own scales, so a series
-// that often drops below its forecast gets a wider lower band.
+// compared with each side of its bands, and the scale of that side moves
+// up after a miss and down after a hit, in proportions that settle where
+// misses happen at the nominal rate: 10 % on each side of the 80 % band,
+// 2.5 % of the 95 % band. Each side has its own scales, so a series that
+// often drops below its forecast gets a wider lower band.
 //
-// Checks are due one and six hours after their origin: one hour gives
-// many checks, six hours lets the scales see how errors grow with the
-// horizon. Checks wait in the series' state.Calibration, so calibration
-// costs a few bytes per series and O(1) per evaluation, whatever the
-// cadence of evaluations (as long as it is at most the finest level's
-// retention).
+// Two checks run at a time, one due an hour after its origin and one six
+// hours after: each calibrates the 80 % band at its horizon, and the
+// forecast's scale moves between the two in log time, so that a band that
+// is right an hour ahead but too narrow six hours ahead (a wandering
+// level) gets wider with the horizon. Both checks also correct the tails
+// the engine measured (Forecast.TailLower/TailUpper) with the misses of the
+// 95 % band. The checks wait in the series' state.Calibration, which costs
+// a few bytes per series and O(1) per evaluation, whatever the cadence of
+// evaluations (as long as it is at most the finest level's retention).
+//
+// The scales of state.Calibration are: near lower, near upper, far lower,
+// far upper, tail correction lower, tail correction upper.
 type Calibration struct {
 	// Rate is the step size of the scale updates in log units per unit
 	// of miss indicator. Default 0.15.
@@ -33,10 +39,11 @@ type Calibration struct {
 // checkHorizons are how far ahead the two checks look.
 var checkHorizons = [2]time.Duration{time.Hour, 6 * time.Hour}
 
-// Nominal one-sided miss rates of the 80 % and 95 % bands, and their z.
+// Nominal one-sided miss rates of the 80 % and 95 % bands, and their z
+// (common-practice normal quantiles, as normQuantile gives them).
 const (
 	miss80, miss95 = 0.10, 0.025
-	z80, z95       = 1.2815515655446004, 1.959963984540054 // common-practice normal quantiles, as normQuantile
+	z80, z95       = 1.2815515655446004, 1.959963984540054
 )
 
 func (c Calibration) params() Calibration {
@@ -61,18 +68,31 @@ func (c Calibration) Apply(cs *state.Calibration, v *state.View, f *Forecast) {
 		return
 	}
 	p := c.params()
+	tails := [2]float64{positive(f.TailLower), positive(f.TailUpper)}
 	for k := range cs.Due {
 		// Due once the finest bucket holding the due time has closed.
 		if cs.Due[k] == 0 || len(v.Levels) == 0 || cs.Due[k]+v.Levels[0].Width > v.End {
 			continue
 		}
 		if y, ok := actual(v, cs.Due[k]); ok && cs.SD[k] > 0 {
-			p.score(cs, (y-float64(cs.Mean[k]))/float64(cs.SD[k]))
+			p.score(cs, k, (y-float64(cs.Mean[k]))/float64(cs.SD[k]), tails)
 		}
 		cs.Due[k] = 0 // scored, or its value is gone: either way done
 	}
 	f.ScaleLower, f.ScaleUpper = scaleOf(cs.Scale[0]), scaleOf(cs.Scale[1])
-	f.ScaleLower95, f.ScaleUpper95 = scaleOf(cs.Scale[2]), scaleOf(cs.Scale[3])
+	f.FarLower, f.FarUpper = f.ScaleLower, f.ScaleUpper
+	if cs.Scale[2] > 0 {
+		f.FarLower = scaleOf(cs.Scale[2])
+	}
+	if cs.Scale[3] > 0 {
+		f.FarUpper = scaleOf(cs.Scale[3])
+	}
+	f.NearAt, f.FarAt = checkHorizons[0].Seconds(), checkHorizons[1].Seconds()
+	f.TailLower = tails[0] * scaleOf(cs.Scale[4])
+	f.TailUpper = tails[1] * scaleOf(cs.Scale[5])
+
+	// New checks are set aside before calibration, so that they measure
+	// the engine's own bands.
 	for k, h := range checkHorizons {
 		if cs.Due[k] != 0 {
 			continue
@@ -87,28 +107,38 @@ func (c Calibration) Apply(cs *state.Calibration, v *state.View, f *Forecast) {
 	}
 }
 
-// score moves the four scales after a check whose value was z standard
-// deviations from its mean.
-func (c Calibration) score(cs *state.Calibration, z float64) {
+// score moves the scales after check k (0 near, 1 far) whose value was z
+// standard deviations from its mean; tails are the current engine tails.
+func (c Calibration) score(cs *state.Calibration, k int, z float64, tails [2]float64) {
 	if math.IsNaN(z) {
 		return
 	}
-	type side struct {
-		i     int
-		z     float64 // band edge in standard deviations, signed
-		alpha float64
-	}
-	for _, s := range [4]side{{0, -z80, miss80}, {1, z80, miss80}, {2, -z95, miss95}, {3, z95, miss95}} {
-		sc := scaleOf(cs.Scale[s.i])
-		edge := s.z * sc
+	for side := range 2 {
+		sign := float64(2*side - 1) // lower −1, upper +1
+		i := 2*k + side
+		s := scaleOf(cs.Scale[i])
+		if k == 1 && cs.Scale[i] == 0 {
+			s = scaleOf(cs.Scale[side]) // the far scale starts where the near one is
+		}
 		miss := 0.0
-		if (s.z < 0 && z < edge) || (s.z > 0 && z > edge) {
+		if sign*z > z80*s {
 			miss = 1
 		}
-		sc *= math.Exp(c.Rate * (miss - s.alpha))
-		cs.Scale[s.i] = float32(min(max(sc, c.Min), c.Max))
+		cs.Scale[i] = float32(c.step(s, miss, miss80))
+		t := scaleOf(cs.Scale[4+side])
+		miss = 0
+		if sign*z > z95*s*tails[side]*t {
+			miss = 1
+		}
+		cs.Scale[4+side] = float32(c.step(t, miss, miss95))
 	}
 	cs.Seen++
+}
+
+// step moves a scale after one check.
+func (c Calibration) step(s, miss, alpha float64) float64 {
+	s *= math.Exp(c.Rate * (miss - alpha))
+	return min(max(s, c.Min), c.Max)
 }
 
 // scaleOf reads a stored scale; 0 (never set) counts as 1.
@@ -119,8 +149,11 @@ func scaleOf(s float32) float64 {
 	return float64(s)
 }
 
-// actual is the value of the finest-level bucket holding t, if v still has
-// it and it is not empty.
+// actual is the value nearest to t in v's finest level: the bucket holding
+// t, or failing that the nearest non-empty one within a quarter of an hour
+// (a series sampled every few minutes leaves most one-minute buckets
+// empty). It reports false when there is none, or when v no longer holds
+// t.
 func actual(v *state.View, t int64) (float64, bool) {
 	if len(v.Levels) == 0 {
 		return 0, false
@@ -130,9 +163,17 @@ func actual(v *state.View, t int64) (float64, bool) {
 		return 0, false
 	}
 	i := (t - l.Start) / l.Width
-	if i >= int64(len(l.Y)) {
+	n := int64(len(l.Y))
+	if i >= n {
 		return 0, false
 	}
-	y := l.Y[i]
-	return y, !math.IsNaN(y)
+	reach := max(int64(15*time.Minute/time.Millisecond)/l.Width, 0)
+	for d := int64(0); d <= reach; d++ {
+		for _, j := range [2]int64{i + d, i - d} {
+			if j >= 0 && j < n && !math.IsNaN(l.Y[j]) {
+				return l.Y[j], true
+			}
+		}
+	}
+	return 0, false
 }

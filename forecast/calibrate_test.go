@@ -104,10 +104,10 @@ func TestCalibrationLostChecks(t *testing.T) {
 	v.End += 600 * minute
 	v.Levels[0].Start += 600 * minute
 	Calibration{}.Apply(&cs, &v, &f)
-	if cs.Seen != 0 || cs.Scale != [4]float32{} {
+	if cs.Seen != 0 || cs.Scale != [6]float32{} {
 		t.Errorf("seen %d, scales %v: want nothing scored", cs.Seen, cs.Scale)
 	}
-	if f.ScaleLower != 1 || f.ScaleUpper95 != 1 {
-		t.Errorf("scales %v %v, want 1", f.ScaleLower, f.ScaleUpper95)
+	if f.ScaleLower != 1 || f.FarUpper != 1 || f.TailUpper != 1 {
+		t.Errorf("scales %v %v %v, want 1", f.ScaleLower, f.FarUpper, f.TailUpper)
 	}
 }

@@ -191,6 +191,7 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 		ScaleLower:    1,
 		ScaleUpper:    1,
 	}
+	f.TailLower, f.TailUpper = sc.tails(reg.lo, reg.hi, fit)
 	// A trend is believed about as far ahead as it has been seen.
 	f.Age = float64(f.Origin-f.Since) / 1000
 	f.Persist = p.Persist * f.Slope * f.Slope
@@ -204,7 +205,7 @@ func (e Incline) Fit(v *state.View, sc *Scratch, f *Forecast) bool {
 // finite reports whether every number of f is finite and every variance
 // non-negative.
 func (f *Forecast) finite() bool {
-	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition, f.VarSeason, f.Diffusion, f.Autocorrelation, f.Age, f.Persist} {
+	for _, x := range [...]float64{f.Level, f.Slope, f.Sigma, f.VarLevel, f.CovLevelSlope, f.VarSlope, f.Transition, f.VarSeason, f.Diffusion, f.Autocorrelation, f.Age, f.Persist, f.TailLower, f.TailUpper} {
 		if math.IsNaN(x) || math.IsInf(x, 0) {
 			return false
 		}

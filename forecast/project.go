@@ -71,7 +71,7 @@ type outlook struct {
 // normCDF(margin) is the probability of an observation beyond it.
 func (o *outlook) margin(dt float64) float64 {
 	m := o.f.Mean(dt)
-	sd := math.Sqrt(o.f.Var(dt)) * o.f.scale(o.th > m)
+	sd := math.Sqrt(o.f.Var(dt)) * o.f.scale(o.th > m, dt)
 	gap := o.d * (m - o.th)
 	if sd <= 0 || math.IsNaN(sd) {
 		switch {
@@ -134,7 +134,7 @@ func (o *outlook) probability(horizon float64) float64 {
 func (o *outlook) crossing(z, span float64) (float64, bool) {
 	f := o.f
 	beyond := func(dt float64) bool {
-		q := f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scale(z > 0)
+		q := f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scale(z > 0, dt)
 		return o.d*(q-o.th) >= 0
 	}
 	if beyond(0) {
@@ -143,11 +143,11 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 	switch {
 	case f.Periodic():
 		return scanCrossing(beyond, span, f.SeasonStep/4)
-	case f.Persist > 0 && f.Age < span:
-		// The variance is piecewise: no single quadratic.
-		return scanCrossing(beyond, span, span/256)
+	case f.Persist > 0 && f.Age < span, f.scaled():
+		// The variance or its scale is piecewise: no single quadratic.
+		return scanCrossing(beyond, span, span/128)
 	}
-	zs := z * f.scale(z > 0)
+	zs := z * f.scale(z > 0, 0)
 	z2 := zs * zs
 	c0, b := o.th-f.Level, f.Slope
 	A := f.Sigma*f.Sigma + f.VarLevel + f.Transition + f.VarSeason

@@ -222,3 +222,44 @@ func (sc *Scratch) trailingRun(lo, n int, level, b, sd float64) (int, float64) {
 	}
 	return run, sum / float64(run)
 }
+
+// Tail estimation: how much heavier than normal the tails of the
+// residuals are on each side.
+const (
+	tailPoints = 240  // newest residuals of the regime looked at
+	tailPrior  = 60.0 // pseudo points of a normal tail the estimate is shrunk toward
+	tailMax    = 3.0  // cap of the ratio
+)
+
+// tails measures, on each side of the fitted line through [lo, hi), the
+// ratio of the 2.5 % tail quantile of the standardized residuals to the
+// 10 % one, relative to the same ratio of a normal distribution: 1 for
+// normal noise, more for noise with spikes or drops. The estimate from n
+// residuals is shrunk toward 1 as n/(n+tailPrior), since an extreme
+// quantile of a few dozen points says little, and is never below 1:
+// lighter tails than normal are not believed from a sample.
+func (sc *Scratch) tails(lo, hi int, fit lineFit) (lower, upper float64) {
+	lo = max(lo, hi-tailPoints)
+	n := hi - lo
+	if n < 10 {
+		return 1, 1
+	}
+	r := sc.buf[:n]
+	for i := range n {
+		j := lo + i
+		r[i] = (sc.y[j] - fit.ym - fit.b*(sc.x[j]-fit.xm)) * sc.som[j]
+	}
+	at := func(p float64) float64 { return selectK(r, min(int(p*float64(n-1)+0.5), n-1)) }
+	med := at(0.5)
+	q025, q10, q90, q975 := at(0.025), at(0.10), at(0.90), at(0.975)
+	const normal = z95 / z80
+	w := float64(n) / (float64(n) + tailPrior)
+	ratio := func(far, near float64) float64 {
+		if !(near > 0) || !(far > 0) {
+			return 1
+		}
+		t := far / near / normal
+		return min(max(1+w*(t-1), 1), tailMax)
+	}
+	return ratio(med-q025, med-q10), ratio(q975-med, q90-med)
+}

@@ -55,11 +55,12 @@ type CycleMemo struct {
 }
 
 // Calibration keeps the bands of a series honest: scale factors for each
-// side of the 80 % and 95 % bands, adjusted online from how past forecasts
-// fared against what then happened, and the forecasts still waiting for
-// their actual values. Package forecast maintains it.
+// side of the bands, adjusted online from how past forecasts fared
+// against what then happened, and the forecasts still waiting for their
+// actual values. Package forecast maintains it and says what each scale
+// means.
 type Calibration struct {
-	Scale [4]float32 // lower 80, upper 80, lower 95, upper 95; 0 counts as 1
+	Scale [6]float32 // 0 counts as 1
 	Due   [2]int64   // unix ms when a pending check's actual is due; 0 for none
 	Mean  [2]float32 // the checked forecast's mean
 	SD    [2]float32 // and its standard deviation

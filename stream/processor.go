@@ -316,7 +316,8 @@ func (w *Worker) evaluate(se *state.Series) {
 			// The series' calibration speaks of its errors, whichever
 			// engine forecasts them.
 			w.alt.ScaleLower, w.alt.ScaleUpper = w.fc.ScaleLower, w.fc.ScaleUpper
-			w.alt.ScaleLower95, w.alt.ScaleUpper95 = w.fc.ScaleLower95, w.fc.ScaleUpper95
+			w.alt.FarLower, w.alt.FarUpper = w.fc.FarLower, w.fc.FarUpper
+			w.alt.NearAt, w.alt.FarAt = w.fc.NearAt, w.fc.FarAt
 			fc = &w.alt
 		}
 		proj := forecast.Project(fc, r)
