@@ -91,12 +91,16 @@ func (f *Forecast) Seasonal(dt float64) float64 {
 	if n == 0 || !(f.SeasonStep > 0) {
 		return 0
 	}
-	p := math.Mod(f.SeasonAt+dt/f.SeasonStep, float64(n))
-	if p < 0 {
-		p += float64(n)
-	}
-	if math.IsNaN(p) {
-		return 0
+	// Floor rather than math.Mod: this runs for every step of a scan.
+	nf := float64(n)
+	p := f.SeasonAt + dt/f.SeasonStep
+	p -= math.Floor(p/nf) * nf
+	if !(p >= 0 && p < nf) {
+		if p == nf {
+			p = 0
+		} else {
+			return 0 // NaN or ±Inf
+		}
 	}
 	i := int(p)
 	fr := p - float64(i)

@@ -140,6 +140,9 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 	if beyond(0) {
 		return 0, true
 	}
+	if o.out(z, span) {
+		return 0, false
+	}
 	switch {
 	case f.Periodic():
 		return scanCrossing(beyond, span, f.SeasonStep/4)
@@ -184,6 +187,31 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 		}
 	}
 	return hi, true
+}
+
+// out reports, from a bound that costs O(1), that the bound
+// Mean + z·sd·scale stays short of the threshold over [0, span]: the
+// mean can rise no more than the slope and the seasonal swing allow, and
+// the variance, a convex function of dt, is largest at an end.
+func (o *outlook) out(z, span float64) bool {
+	f := o.f
+	reach := o.d*(f.Level-o.th) + max(o.d*f.Slope*span, 0)
+	if f.Periodic() {
+		hi := 0.0
+		for _, s := range f.Season {
+			hi = max(hi, o.d*s)
+		}
+		reach += hi
+	}
+	if o.d*z > 0 {
+		sd := math.Sqrt(max(f.Var(0), f.Var(span)))
+		s := 1.0
+		for _, x := range [...]float64{f.ScaleLower, f.ScaleUpper, f.FarLower, f.FarUpper} {
+			s = max(s, positive(x))
+		}
+		reach += math.Abs(z) * sd * s
+	}
+	return reach < 0 && !math.IsNaN(reach)
 }
 
 // scanCrossing finds the first dt in (0, span] where beyond holds when the

@@ -2,6 +2,7 @@ package forecast
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 	"time"
 )
@@ -131,5 +132,43 @@ func TestProjectInvalid(t *testing.T) {
 	g.Level = math.NaN()
 	if p := Project(&g, &r); p.Probability != 0 || p.ETA != 0 {
 		t.Errorf("NaN level: %+v", p)
+	}
+}
+
+// TestOutBound checks the O(1) bound that lets crossing skip its scan: on
+// random forecasts (invented), whenever it says the bound stays short of
+// the threshold, a dense scan agrees.
+func TestOutBound(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	skipped := 0
+	for range 2000 {
+		f := Forecast{
+			Level: r.NormFloat64(), Slope: r.NormFloat64() / 86400, Sigma: 0.1 + r.Float64(),
+			VarLevel: r.Float64() * 0.1, VarSlope: r.Float64() * 1e-10, Persist: r.Float64() * 1e-10, Age: r.Float64() * 86400,
+			ScaleLower: 0.5 + r.Float64(), FarUpper: 0.5 + 2*r.Float64(), NearAt: 3600, FarAt: 21600,
+		}
+		if r.IntN(2) == 0 {
+			f.Season = []float64{r.NormFloat64(), r.NormFloat64(), r.NormFloat64(), r.NormFloat64()}
+			f.SeasonStep = 6 * 3600
+		}
+		for _, d := range []Direction{Above, Below} {
+			o := outlook{f: &f, d: float64(d), th: 4 * r.NormFloat64()}
+			for _, z := range []float64{0, z80, -z80} {
+				if !o.out(z, 4*86400) {
+					continue
+				}
+				skipped++
+				for i := 0; i <= 4000; i++ {
+					dt := 4 * 86400 * float64(i) / 4000
+					q := f.Mean(dt) + z*math.Sqrt(f.Var(dt))*f.scale(z > 0, dt)
+					if o.d*(q-o.th) >= 0 {
+						t.Fatalf("bound says no crossing, yet the bound %v crosses %v at %v: %+v", z, o.th, dt, f)
+					}
+				}
+			}
+		}
+	}
+	if skipped == 0 {
+		t.Fatal("the bound never applied")
 	}
 }
