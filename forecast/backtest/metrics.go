@@ -38,9 +38,8 @@ func naiveScale(tl *timeline, until int64) float64 {
 	return s / float64(n-1)
 }
 
-// weightedGeoMean is exp(Σ w·log x / Σ w) over the finite positive x; the
-// AvgRelMAE of Davydenko & Fildes (2013) weights each series' relative MAE
-// by its number of forecasts. NaN when nothing qualifies.
+// weightedGeoMean is exp(Σ w·log x / Σ w) over the finite positive x
+// (common-practice weighted geometric mean). NaN when nothing qualifies.
 func weightedGeoMean(x, w []float64) float64 {
 	var s, ws float64
 	for i := range x {

@@ -38,9 +38,11 @@ type Row struct {
 	MASE       [nMethods]float64
 	MASEByStep [nMethods][]float64
 	// Rel is the engine's MAE relative to each method, as the geometric
-	// mean over series weighted by their number of forecasts (AvgRelMAE,
-	// Davydenko & Fildes 2013); below 1 the engine is better. Series where
-	// either MAE is 0 are left out.
+	// mean over series of the ratio of their MAEs, each series counting
+	// once (the geometric-mean relative MAE; Davydenko & Fildes 2013 also
+	// weigh by the number of forecasts, which lets a few long series
+	// decide); below 1 the engine is better. Series where either MAE is 0
+	// are left out.
 	Rel [nMethods]float64
 	// Best is the best single baseline, the one with the lowest geometric
 	// mean MAE over the set, and RelBest = Rel[Best].
@@ -132,7 +134,7 @@ func pool(name string, rs []*Result, steps int) Row {
 		row.Series++
 		row.Origins += r.Origins
 		row.Points += n
-		weight = append(weight, float64(n))
+		weight = append(weight, 1)
 		var tot [nMethods]float64
 		for m := range tot {
 			for _, e := range r.AbsErr[m] {

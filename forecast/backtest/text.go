@@ -33,7 +33,7 @@ func (rep *Report) WriteText(w io.Writer) error {
 	}
 
 	o := &rep.Overall
-	fmt.Fprintf(bw, "\nmethods over all series (MASE by step, relative MAE = AvgRelMAE of the engine against the method)\n")
+	fmt.Fprintf(bw, "\nmethods over all series (MASE by step, relative MAE = geometric mean over series of engine MAE / method MAE)\n")
 	marks := stepMarks(rep.Steps)
 	fmt.Fprintf(bw, "%-9s %7s %7s", "method", "rel MAE", "MASE")
 	for _, k := range marks {
