@@ -29,6 +29,9 @@ const (
 	// down between its peaks; what a straight line leaves of a wandering
 	// level or a level shift only decays.
 	cycleRise = 0.3
+	// cycleSwing is the least peak that a trough-to-peak swing of twice
+	// cycleRise makes a cycle without the band.
+	cycleSwing = 0.4
 	// cycleStrong: the first peak that reaches this fraction of the
 	// highest is the period, so a daily cycle is found as daily even when
 	// the weekly peak is higher.
@@ -64,6 +67,14 @@ type cycleScratch struct {
 	window   int       // when > 1, detrend by a moving average of this many points
 	dayAt    []float64 // their day indices
 	view     state.View
+
+	// The finer profile (tide.go): the interpolated shape within each
+	// coarse bucket, the detail per finer phase (sums, then values) and
+	// its counts, the finer profile, the integral of the profile for the
+	// means over buckets, and the trend's slope per coarse bucket.
+	shape, dsum, fine, cum []float64
+	dcnt                   []int32
+	slope                  float64
 }
 
 // DetectCycles looks for cycles in v's uniform levels. The coarsest level
@@ -93,16 +104,21 @@ func DetectCycles(v *state.View, sc *Scratch) Cycles {
 	}
 	c.At = levelEnd(&v.Levels[long])
 	c = sc.cyc.detectLevel(&v.Levels[long], longMin, longMax, c)
-	if c.Period == 0 {
+	if c.Period == 0 || c.Period > day {
 		// A daily cycle under slower changes (a lower weekend, a trend
-		// that bends) can hide from a straight-line detrending: try again
-		// with a day's moving average taken out.
+		// that bends) can hide from a straight-line detrending, or show
+		// only as a longer pattern: look again with a day's moving average
+		// taken out. A longer period found first stays as the second
+		// period when it is a whole number of days.
 		lv := &v.Levels[long]
 		if w := time.Duration(lv.Width) * time.Millisecond; w > 0 && day%w == 0 && day/w >= 4 {
 			// A second look is a second chance for noise too: only a
 			// calendar period counts.
 			sc.cyc.window = int(day / w)
-			if d := sc.cyc.detectLevel(lv, longMin, day, c); onCalendar(d.Period) {
+			if d := sc.cyc.detectLevel(lv, longMin, day, Cycles{At: c.At}); onCalendar(d.Period) {
+				if c.Period > day && c.Period%d.Period == 0 && onCalendar(c.Period) {
+					d.Period2 = c.Period
+				}
 				c = d
 			}
 			sc.cyc.window = 0
@@ -340,7 +356,13 @@ func (cs *cycleScratch) detect(y []float64, lo, hi int) (p, p2 int, acf float64)
 				continue
 			}
 			a := adj(k)
-			if r[k] < min(cycleZ*se[k], cycleSure) || a < cycleFloor || r[k]-low < cycleRise {
+			// Once slow patterns are taken out by a moving average, a
+			// swing of twice cycleRise from a trough to a peak this high
+			// is a cycle whatever the band says; noise moves the
+			// autocorrelation by about 1/√n. (With only a line taken out,
+			// a level shift swings the autocorrelation too.)
+			swing := cs.window > 1 && r[k]-low >= 2*cycleRise && r[k] >= cycleSwing
+			if r[k] < min(cycleZ*se[k], cycleSure) && !swing || a < cycleFloor || r[k]-low < cycleRise {
 				continue
 			}
 			if 2*k+1 <= L && max(adj(2*k-1), adj(2*k), adj(2*k+1)) < cycleFloor/2 {
