@@ -44,6 +44,10 @@ const (
 	// standard deviations, so that a gross spike cannot dominate the sums
 	// while the peaks of a smooth cycle, within about one, pass.
 	cycleClip = 4.0
+	// cycleTwoDays is the correlation two days of a history shorter than
+	// three days must show hour by hour to count as a daily cycle (see
+	// twoDays); its false-detection rate is measured in cycle_test.go.
+	cycleTwoDays = 0.8
 )
 
 // Period ranges searched on a view: the coarsest level for cycles of
@@ -68,13 +72,14 @@ type cycleScratch struct {
 	dayAt    []float64 // their day indices
 	view     state.View
 
-	// The finer profile (tide.go): the interpolated shape within each
+	// The finer profile (tide.go): the first cycle's profile, the
+	// interpolated shape within each
 	// coarse bucket, the detail per finer phase (sums, then values) and
 	// its counts, the finer profile, the integral of the profile for the
 	// means over buckets, and the trend's slope per coarse bucket.
-	shape, dsum, fine, cum []float64
-	dcnt                   []int32
-	slope                  float64
+	base, shape, dsum, fine, cum []float64
+	dcnt                         []int32
+	slope                        float64
 }
 
 // DetectCycles looks for cycles in v's uniform levels. The coarsest level
@@ -86,6 +91,10 @@ type cycleScratch struct {
 // coarsest level found a cycle that short, which the finer level resolves
 // better; a daily or weekly cycle is kept from the coarsest level. See
 // detect for the method.
+//
+// A history of two to three days is too short for the autocorrelation at
+// a day's lag; when the search finds nothing there, a daily cycle is
+// taken from how closely the last two days agree hour by hour (twoDays).
 //
 // At is the end of the coarsest level's newest bucket, so that callers
 // can repeat detection only when a new one has closed. A nil sc is allowed
@@ -124,6 +133,11 @@ func DetectCycles(v *state.View, sc *Scratch) Cycles {
 			sc.cyc.window = 0
 		}
 	}
+	if c.Period == 0 {
+		if r, ok := sc.cyc.twoDays(&v.Levels[long]); ok {
+			c.Period, c.ACF = day, r
+		}
+	}
 	if c.Period > 0 && c.Period > shortMax || short < 0 {
 		return c
 	}
@@ -134,6 +148,76 @@ func DetectCycles(v *state.View, sc *Scratch) Cycles {
 		return s
 	}
 	return c
+}
+
+// twoDays looks for a daily cycle in a history of two to three days on
+// the level lv, too short for the autocorrelation (whose bias correction
+// at a lag of half the series doubles its noise): the last two whole days,
+// each less its own least-squares line, must correlate by at least
+// cycleTwoDays over the hours both hold. Each day's line takes out what a
+// random walk or a level shift puts into it, so that what is left of two
+// unrelated days rarely lines up hour by hour. It returns the correlation.
+func (cs *cycleScratch) twoDays(lv *state.LevelView) (float64, bool) {
+	w := time.Duration(lv.Width) * time.Millisecond
+	if w <= 0 || day%w != 0 {
+		return 0, false
+	}
+	p := int(day / w)
+	y, _ := trimNaN(lv.Y)
+	n := len(y)
+	if p < 8 || n < 2*p || n >= 3*p {
+		return 0, false
+	}
+	a, b := y[n-2*p:n-p], y[n-p:]
+	cs.tmp = grow(cs.tmp, 2*p)
+	da, db := cs.tmp[:p], cs.tmp[p:2*p]
+	if !lineResid(a, b, da) || !lineResid(b, a, db) {
+		return 0, false
+	}
+	var sab, saa, sbb float64
+	for i := range p {
+		sab += da[i] * db[i]
+		saa += da[i] * da[i]
+		sbb += db[i] * db[i]
+	}
+	if !(saa > 0 && sbb > 0) {
+		return 0, false
+	}
+	r := sab / math.Sqrt(saa*sbb)
+	return r, r >= cycleTwoDays
+}
+
+// lineResid stores in d the values of y less their least-squares line
+// over the positions where both y and other hold a value, and 0 elsewhere.
+// It reports false when fewer than three quarters of the positions count.
+func lineResid(y, other, d []float64) bool {
+	var n, sx, sy, sxx, sxy float64
+	for i, v := range y {
+		if v == v && other[i] == other[i] {
+			x := float64(i)
+			n++
+			sx += x
+			sy += v
+			sxx += x * x
+			sxy += x * v
+		}
+	}
+	if 4*n < 3*float64(len(y)) {
+		return false
+	}
+	den := n*sxx - sx*sx
+	if !(den > 0) {
+		return false
+	}
+	b := (n*sxy - sx*sy) / den
+	a := (sy - b*sx) / n
+	for i, v := range y {
+		d[i] = 0
+		if v == v && other[i] == other[i] {
+			d[i] = v - a - b*float64(i)
+		}
+	}
+	return true
 }
 
 // detectLevel runs detect on one level for periods from..to and returns

@@ -150,6 +150,100 @@ func TestDetectNoCycle(t *testing.T) {
 	}
 }
 
+// Invented data: the two-day check alone on white noise, random walks,
+// trends, level shifts and noise with gaps of two to three days must find
+// a daily cycle in at most 1 % of seeds, and find a daily cycle of
+// amplitude 1 under hourly noise of 0.15 (a weaker one waits for the
+// autocorrelation at three days).
+func TestTwoDays(t *testing.T) {
+	const seeds = 1000
+	end := int64(1_700_000_000_000) / hour * hour
+	gens := []struct {
+		name string
+		gen  func(rng *rand.Rand, y []float64)
+	}{
+		{"white noise", func(rng *rand.Rand, y []float64) {
+			for i := range y {
+				y[i] = rng.NormFloat64()
+			}
+		}},
+		{"random walk", func(rng *rand.Rand, y []float64) {
+			acc := 0.0
+			for i := range y {
+				acc += rng.NormFloat64()
+				y[i] = acc
+			}
+		}},
+		{"trend", func(rng *rand.Rand, y []float64) {
+			for i := range y {
+				y[i] = 0.05*float64(i) + rng.NormFloat64()
+			}
+		}},
+		{"level shift", func(rng *rand.Rand, y []float64) {
+			at := len(y)/4 + rng.IntN(len(y)/2)
+			for i := range y {
+				y[i] = rng.NormFloat64()
+				if i >= at {
+					y[i] += 8
+				}
+			}
+		}},
+		{"noise with gaps", func(rng *rand.Rand, y []float64) {
+			for i := range y {
+				y[i] = rng.NormFloat64()
+				if rng.IntN(5) == 0 {
+					y[i] = math.NaN()
+				}
+			}
+		}},
+	}
+	var cs cycleScratch
+	for _, g := range gens {
+		for _, hours := range []int{48, 60, 71} {
+			found := 0
+			for seed := range seeds {
+				rng := rand.New(rand.NewPCG(uint64(seed), uint64(1000+hours)))
+				y := make([]float64, hours)
+				g.gen(rng, y)
+				lv := state.LevelView{Width: hour, Start: end - int64(hours)*hour, Y: y}
+				if _, ok := cs.twoDays(&lv); ok {
+					found++
+				}
+			}
+			rate := float64(found) / seeds
+			t.Logf("%s, %d h: daily cycle in %d of %d seeds", g.name, hours, found, seeds)
+			if rate > 0.01 {
+				t.Errorf("%s, %d h: false-detection rate %.1f %%, want ≤ 1 %%", g.name, hours, 100*rate)
+			}
+		}
+	}
+	missed := 0
+	for seed := range 100 {
+		rng := rand.New(rand.NewPCG(uint64(seed), 7))
+		y := make([]float64, 50)
+		for i := range y {
+			y[i] = 10 + math.Sin(2*math.Pi*float64(i)/24) + 0.15*rng.NormFloat64()
+		}
+		lv := state.LevelView{Width: hour, Start: end - 50*hour, Y: y}
+		if _, ok := cs.twoDays(&lv); !ok {
+			missed++
+		}
+	}
+	if missed > 5 {
+		t.Errorf("daily cycle under noise: missed in %d of 100 seeds", missed)
+	}
+	// Too long or too short a history is left to detect.
+	for _, hours := range []int{47, 72} {
+		lv := state.LevelView{Width: hour, Start: end - int64(hours)*hour, Y: make([]float64, hours)}
+		for i := range lv.Y {
+			lv.Y[i] = math.Sin(2 * math.Pi * float64(i) / 24)
+		}
+		if _, ok := cs.twoDays(&lv); ok {
+			t.Errorf("%d h: two-day check ran", hours)
+		}
+	}
+}
+
 // Invented data: minute points of a cycle plus noise, seen through the
 // default layout.
 func TestDetectCyclesView(t *testing.T) {
@@ -178,7 +272,8 @@ func TestDetectCyclesView(t *testing.T) {
 		{"every 4 h", 14, 1, func(i int) float64 { return math.Sin(2 * math.Pi * float64(i) / 240) }, 4 * time.Hour, 0, 0.5, 1},
 		{"every 90 min, one day", 1, 0.5, func(i int) float64 { return math.Sin(2 * math.Pi * float64(i) / 90) }, 90 * time.Minute, 0, 0.5, 1},
 		{"none", 14, 1, func(i int) float64 { return 10 }, 0, 0, 0, 1},
-		{"two days only", 2, 1, func(i int) float64 { return 10 + day(i) }, 0, 0, 0, 1},
+		{"two days only", 2, 1, func(i int) float64 { return 10 + day(i) }, 24 * time.Hour, 0, 0.8, 1}, // the two-day check
+		{"one day only", 1, 1, func(i int) float64 { return 10 + day(i) }, 0, 0, 0, 1},
 	}
 	for _, tc := range tests {
 		s := newSeries(tc.days*1440, tc.sigma, 3, tc.truth)

@@ -72,13 +72,17 @@ func TestTideAnomalousDay(t *testing.T) {
 	clean := func(i int) float64 { return 10 + daily(i) }
 	for _, tc := range []struct {
 		name string
+		day  int // of 14, from 0
 		bad  func(v float64) float64
 	}{
-		{"doubled", func(v float64) float64 { return 2 * v }},
-		{"zero", func(v float64) float64 { return 0 }},
+		{"doubled", 9, func(v float64) float64 { return 2 * v }},
+		{"zero", 9, func(v float64) float64 { return 0 }},
+		// The last day is the one the fifteen-minute level holds: its
+		// shape within the hours must not carry its amplitude over.
+		{"doubled, last", 13, func(v float64) float64 { return 10 + 2*(v-10) }},
 	} {
 		dirty := func(i int) float64 {
-			if i/dayMin == 9 { // day 10 of 14
+			if i/dayMin == tc.day {
 				return tc.bad(clean(i))
 			}
 			return clean(i)
@@ -92,13 +96,19 @@ func TestTideAnomalousDay(t *testing.T) {
 		if fd.Cycle != 24*time.Hour {
 			t.Fatalf("%s: cycle %v", tc.name, fd.Cycle)
 		}
-		d := 0.0
+		d, ds := 0.0, 0.0
 		for h := 0; h <= 24; h++ {
 			dt := float64(h) * 3600
 			d = max(d, math.Abs(fd.Mean(dt)-fc.Mean(dt)))
+			ds = max(ds, math.Abs(fd.Seasonal(dt)-fc.Seasonal(dt)))
 		}
-		t.Logf("%s day: next day's mean within %.3f of the clean fit's (amplitude 2)", tc.name, d)
-		if d > 0.2 {
+		t.Logf("%s day: next day's mean within %.3f of the clean fit's, its profile within %.3f (amplitude 2)", tc.name, d, ds)
+		if ds > 0.2 {
+			t.Errorf("%s day: next day's profile moves by up to %.3f", tc.name, ds)
+		}
+		// On the last day the anomaly is what the level is fitted to
+		// now; before, it is long past.
+		if d > 0.2 && tc.day < 13 {
 			t.Errorf("%s day: next day's mean moves by up to %.3f", tc.name, d)
 		}
 	}
@@ -184,11 +194,12 @@ func TestTideRefuses(t *testing.T) {
 	if (Tide{}).Fit(&v, nil, &f) || f.Engine != "" || f.Level != 0 {
 		t.Errorf("fit on a flat series: %+v", f)
 	}
-	// A cycle that the history is too short for.
-	short := newSeries(2*dayMin, 0.5, 6, func(i int) float64 { return 10 + daily(i) })
-	short.view(short.end(2*dayMin-1), &v)
+	// A cycle that the history is too short for: less than MinCycles
+	// cycles.
+	short := newSeries(3*dayMin/2, 0.5, 6, func(i int) float64 { return 10 + daily(i) })
+	short.view(short.end(3*dayMin/2-1), &v)
 	if (Tide{Cycles: Cycles{Period: 24 * time.Hour}}).Fit(&v, nil, &f) {
-		t.Errorf("fit of a daily cycle on two days: %+v", f)
+		t.Errorf("fit of a daily cycle on a day and a half: %+v", f)
 	}
 	if (Tide{}).Fit(nil, nil, &f) || (Tide{}).Fit(&v, nil, nil) {
 		t.Error("fit on nil succeeded")
@@ -198,6 +209,128 @@ func TestTideRefuses(t *testing.T) {
 	long.view(long.end(minutes-1), &v)
 	if (Tide{Cycles: Cycles{Period: 25*time.Hour + time.Minute}}).Fit(&v, nil, &f) {
 		t.Errorf("fit with an odd period: %+v", f)
+	}
+}
+
+// steps is a daily cycle of levels that change on the hour and inside
+// it: 20 at night, 80 from 09:00, 60 from 13:30, 20 again from 18:00.
+func steps(i int) float64 {
+	switch m := i % dayMin; {
+	case m < 9*60 || m >= 18*60:
+		return 20
+	case m < 13*60+30:
+		return 80
+	default:
+		return 60
+	}
+}
+
+// A cycle of steps on and inside the hour: the profile is refined to the
+// fifteen-minute level, and the forecast follows the steps, where an
+// hourly profile interpolated linearly is off by up to half a step next
+// to each of them.
+func TestTideSteps(t *testing.T) {
+	const minutes = 14*dayMin + 6*60 // origin at 06:00
+	f, _ := tideFit(t, newSeries(minutes, 1, 8, steps), minutes, Tide{})
+	if f.Cycle != 24*time.Hour || f.SeasonStep != 900 || len(f.Season) != 96 {
+		t.Fatalf("cycle %v, season of %d at %gs", f.Cycle, len(f.Season), f.SeasonStep)
+	}
+	// The centre of every quarter hour of the next day: the truth is
+	// constant over each, and the noise of a quarter's mean is 1/√15.
+	w := 0.0
+	for q := range 96 {
+		dt := float64(q)*900 + 450
+		w = max(w, math.Abs(f.Mean(dt)-steps(minutes+int(dt/60))))
+	}
+	t.Logf("next day's quarter hours within %.2f of the truth (steps of 20 to 60)", w)
+	if w > 2 {
+		t.Errorf("next day's quarter hours off the truth by up to %.2f", w)
+	}
+	// A smooth cycle keeps the hourly profile (TestTideDaily); so does a
+	// cycle the finer level shows only in part (an eight-hour cycle on
+	// two hours of minutes, under a fifteen-minute profile).
+	eight := func(i int) float64 { return 10 + 20*float64((i/120)%4/3) }
+	g, _ := tideFit(t, newSeries(3*dayMin, 0.3, 9, eight), 3*dayMin, Tide{Cycles: Cycles{Period: 8 * time.Hour}})
+	if g.SeasonStep != 900 || len(g.Season) != 32 {
+		t.Errorf("eight-hour cycle: season of %d at %gs", len(g.Season), g.SeasonStep)
+	}
+}
+
+// Bursts far above a cycle do not lift the moving average under the
+// profile.
+func TestRobustTrend(t *testing.T) {
+	y := make([]float64, 7*24)
+	for i := range y {
+		y[i] = 10 + 3*math.Sin(2*math.Pi*float64(i)/24)
+		if i >= 80 && i < 85 {
+			y[i] += 100 // five hours of a burst
+		}
+	}
+	var cs cycleScratch
+	trend := cs.robustTrend(y, 24)
+	// A plain average over the day around hour 82 is lifted by
+	// 500/24 ≈ 21. Winsorized values still count at the limit, three
+	// robust standard deviations of the distances (the sine's, about 3.1)
+	// above the average of the round before: the lift L shrinks round by
+	// round toward L = 5·(L + 9.4)/24, that is 2.5.
+	for _, i := range []int{70, 82, 95} {
+		if d := trend[i] - 10; math.Abs(d) > 3 {
+			t.Errorf("hour %d: trend %.2f, want 10 within 3", i, trend[i])
+		}
+	}
+	// The ends are carried along the line through the first and last
+	// values of the average.
+	if math.IsNaN(trend[0]) || math.IsNaN(trend[len(y)-1]) {
+		t.Errorf("ends not extended: %g, %g", trend[0], trend[len(y)-1])
+	}
+}
+
+// The mean of the interpolated profile over a bucket, from its integral,
+// against a midpoint sum of 20000 points (numerical integration, common
+// practice).
+func TestSeasonMean(t *testing.T) {
+	var cs cycleScratch
+	cs.season = []float64{3, -1, 4, -1, 5, -9, 2, -3}
+	f := Forecast{Season: cs.season, SeasonStep: 900, SeasonAt: 2.25}
+	cs.integrate()
+	for _, tc := range []struct{ dt, width float64 }{
+		{0, 900}, {-1800, 3600}, {-86400 + 450, 900}, {-3.3e5, 7200}, {1234, 60}, {-450, 8 * 900}, {0, 0},
+	} {
+		got := cs.seasonMean(&f, tc.dt, tc.width)
+		want := f.Seasonal(tc.dt)
+		if tc.width > 0 {
+			const k = 20000
+			want = 0
+			for j := range k {
+				want += f.Seasonal(tc.dt - tc.width/2 + (float64(j)+0.5)*tc.width/k)
+			}
+			want /= k
+		}
+		if math.Abs(got-want) > 1e-6 {
+			t.Errorf("dt %g, width %g: mean %.9f, want %.9f", tc.dt, tc.width, got, want)
+		}
+	}
+}
+
+func TestFillCyclic(t *testing.T) {
+	for _, tc := range []struct {
+		x    []float64
+		cnt  []int32
+		want []float64
+	}{
+		{[]float64{0, 0, 4, 0}, []int32{0, 0, 1, 0}, []float64{4, 4, 4, 4}},
+		{[]float64{2, 0, 0, 8, 0, 0}, []int32{1, 0, 0, 1, 0, 0}, []float64{2, 4, 6, 8, 6, 4}},
+		{[]float64{1, 2, 3}, []int32{1, 1, 1}, []float64{1, 2, 3}},
+		{[]float64{5, 5}, []int32{0, 0}, []float64{0, 0}},
+	} {
+		x := append([]float64(nil), tc.x...)
+		fillCyclic(x, tc.cnt)
+		for i := range x {
+			if math.Abs(x[i]-tc.want[i]) > 1e-12 {
+				t.Errorf("fill %v / %v = %v, want %v", tc.x, tc.cnt, x, tc.want)
+				break
+			}
+		}
 	}
 }
 
@@ -237,6 +370,42 @@ func BenchmarkTideFit(b *testing.B) {
 	b.ReportAllocs()
 	for b.Loop() {
 		e.Fit(v, sc, &f)
+	}
+}
+
+// A fit whose profile is refined to fifteen minutes (TestTideSteps).
+func BenchmarkTideFitSteps(b *testing.B) {
+	const minutes = 7*dayMin + 6*60
+	s := newSeries(minutes, 1, 8, steps)
+	v := new(state.View)
+	s.view(s.end(minutes-1), v)
+	sc := NewScratch()
+	e := Tide{Cycles: DetectCycles(v, sc)}
+	var f Forecast
+	if !e.Fit(v, sc, &f) || len(f.Season) != 96 {
+		b.Fatalf("cycles %+v, season of %d", e.Cycles, len(f.Season))
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		e.Fit(v, sc, &f)
+	}
+}
+
+// Projection on a refined profile: its grid follows SeasonStep.
+func BenchmarkProjectTideSteps(b *testing.B) {
+	const minutes = 7*dayMin + 6*60
+	s := newSeries(minutes, 1, 8, steps)
+	v := new(state.View)
+	s.view(s.end(minutes-1), v)
+	var f Forecast
+	if !(Tide{}).Fit(v, NewScratch(), &f) || len(f.Season) != 96 {
+		b.Fatalf("season of %d", len(f.Season))
+	}
+	r := Rule{Threshold: 90, Direction: Above}
+	r.Defaults()
+	b.ReportAllocs()
+	for b.Loop() {
+		Project(&f, &r)
 	}
 }
 
