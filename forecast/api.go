@@ -143,8 +143,9 @@ type Rule struct {
 	Confirm, Release time.Duration
 	// Warmup is how much history a series needs before an incident opens
 	// on it: until a daily cycle has been seen to repeat, its rising half
-	// looks like a trend, and cycle detection needs three cycles and a
-	// few hours to settle. Default 96h; negative means none.
+	// looks like a trend, and cycle detection is sure of a daily cycle
+	// only after three of them and a few hours to settle. Default 96h;
+	// negative means none.
 	Warmup time.Duration
 	Engine string // engine override; empty chooses automatically
 }
