@@ -18,6 +18,8 @@ import (
 	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/stream"
+
+	"github.com/headroom-dev/headroom/forecast/backtest"
 )
 
 func TestHelp(t *testing.T) {
@@ -42,13 +44,13 @@ func TestHelp(t *testing.T) {
 func TestParseTime(t *testing.T) {
 	want := time.Date(2014, 4, 1, 0, 5, 0, 0, time.UTC).UnixMilli()
 	for _, s := range []string{"2014-04-01 00:05:00", "2014-04-01T00:05:00Z", "2014-04-01T02:05:00+02:00", "1396310700"} {
-		got, err := parseTime(s)
+		got, err := backtest.ParseTime(s)
 		if err != nil || got != want {
-			t.Errorf("parseTime(%q) = %d, %v; want %d", s, got, err, want)
+			t.Errorf("ParseTime(%q) = %d, %v; want %d", s, got, err, want)
 		}
 	}
-	if _, err := parseTime("yesterday"); err == nil {
-		t.Error("parseTime accepted nonsense")
+	if _, err := backtest.ParseTime("yesterday"); err == nil {
+		t.Error("ParseTime accepted nonsense")
 	}
 }
 

@@ -3,20 +3,18 @@ package main
 import (
 	"bufio"
 	"context"
-	"encoding/csv"
 	"encoding/json"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"os"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"sync"
 	"time"
 
 	"github.com/headroom-dev/headroom/forecast"
+	"github.com/headroom-dev/headroom/forecast/backtest"
 	"github.com/headroom-dev/headroom/stream"
 )
 
@@ -100,7 +98,7 @@ func replay(ctx context.Context, r io.Reader, metric string, eng *engineFlags, r
 		return stream.Stats{}, err
 	}
 	w := proc.NewWorker()
-	err = readCSV(r, func(line int, ts int64, v float64) error {
+	err = backtest.ReadRows(r, func(line int, ts int64, v float64) error {
 		if line%4096 == 0 && ctx.Err() != nil {
 			return ctx.Err()
 		}
@@ -128,64 +126,3 @@ func (s *lineSink) write(v any) {
 func (s *lineSink) Forecast(r *stream.ForecastRecord) { s.write(r) }
 func (s *lineSink) Breach(r *stream.BreachRecord)     { s.write(r) }
 func (s *lineSink) Reject(r *stream.RejectRecord)     { s.write(r) }
-
-// parseTime reads the CSV timestamp forms replay accepts and returns unix ms.
-func parseTime(s string) (int64, error) {
-	s = strings.TrimSpace(s)
-	if t, err := time.Parse("2006-01-02 15:04:05", s); err == nil {
-		return t.UnixMilli(), nil
-	}
-	if t, err := time.Parse(time.RFC3339Nano, s); err == nil {
-		return t.UnixMilli(), nil
-	}
-	if f, err := strconv.ParseFloat(s, 64); err == nil {
-		return int64(f * 1000), nil
-	}
-	return 0, fmt.Errorf("timestamp %q is neither 'YYYY-MM-DD HH:MM:SS', RFC3339 nor unix seconds", s)
-}
-
-// readCSV calls fn for every row of a timestamp,value CSV.
-func readCSV(r io.Reader, fn func(line int, ts int64, v float64) error) error {
-	cr := csv.NewReader(r)
-	cr.FieldsPerRecord = -1
-	cr.ReuseRecord = true
-	head, err := cr.Read()
-	if err != nil {
-		return fmt.Errorf("csv header: %w", err)
-	}
-	ti, vi := -1, -1
-	for i, h := range head {
-		switch strings.ToLower(strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))) {
-		case "timestamp":
-			ti = i
-		case "value":
-			vi = i
-		}
-	}
-	if ti < 0 || vi < 0 {
-		return errors.New("csv header must name columns timestamp and value")
-	}
-	for line := 2; ; line++ {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			return nil
-		}
-		if err != nil {
-			return fmt.Errorf("csv line %d: %w", line, err)
-		}
-		if len(rec) <= max(ti, vi) {
-			return fmt.Errorf("csv line %d: too few columns", line)
-		}
-		ts, err := parseTime(rec[ti])
-		if err != nil {
-			return fmt.Errorf("csv line %d: %w", line, err)
-		}
-		v, err := strconv.ParseFloat(strings.TrimSpace(rec[vi]), 64)
-		if err != nil {
-			return fmt.Errorf("csv line %d: value: %w", line, err)
-		}
-		if err := fn(line, ts, v); err != nil {
-			return err
-		}
-	}
-}

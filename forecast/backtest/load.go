@@ -15,18 +15,18 @@ import (
 	"time"
 )
 
-// ReadCSV reads one series from a CSV with a header naming the columns
-// timestamp and value (other columns are ignored). Timestamps may be
-// 'YYYY-MM-DD HH:MM:SS' (UTC), RFC3339 or unix seconds. Points keep file
-// order; steps may be irregular. A malformed row is an error naming its
-// line; a series needs at least two points.
-func ReadCSV(r io.Reader, name string) (*Series, error) {
+// ReadRows calls fn with every row of a CSV with a header naming the
+// columns timestamp and value (other columns are ignored), in file order.
+// Timestamps may be 'YYYY-MM-DD HH:MM:SS' (UTC), RFC3339 or unix seconds
+// (see ParseTime). A malformed row is an error naming its line; values
+// are passed on as read, NaN and infinities included, for fn to judge.
+func ReadRows(r io.Reader, fn func(line int, ts int64, v float64) error) error {
 	cr := csv.NewReader(r)
 	cr.FieldsPerRecord = -1
 	cr.ReuseRecord = true
 	head, err := cr.Read()
 	if err != nil {
-		return nil, fmt.Errorf("backtest: %s: header: %w", name, err)
+		return fmt.Errorf("header: %w", err)
 	}
 	ti, vi := -1, -1
 	for i, h := range head {
@@ -38,33 +38,48 @@ func ReadCSV(r io.Reader, name string) (*Series, error) {
 		}
 	}
 	if ti < 0 || vi < 0 {
-		return nil, fmt.Errorf("backtest: %s: header must name the columns timestamp and value", name)
+		return errors.New("header must name the columns timestamp and value")
 	}
-	s := &Series{Name: name}
 	for line := 2; ; line++ {
 		rec, err := cr.Read()
 		if errors.Is(err, io.EOF) {
-			break
+			return nil
 		}
 		if err != nil {
-			return nil, fmt.Errorf("backtest: %s: line %d: %w", name, line, err)
+			return fmt.Errorf("line %d: %w", line, err)
 		}
 		if len(rec) <= max(ti, vi) {
-			return nil, fmt.Errorf("backtest: %s: line %d: too few columns", name, line)
+			return fmt.Errorf("line %d: too few columns", line)
 		}
-		ts, err := parseTime(rec[ti])
+		ts, err := ParseTime(rec[ti])
 		if err != nil {
-			return nil, fmt.Errorf("backtest: %s: line %d: %w", name, line, err)
+			return fmt.Errorf("line %d: %w", line, err)
 		}
 		v, err := strconv.ParseFloat(strings.TrimSpace(rec[vi]), 64)
 		if err != nil {
-			return nil, fmt.Errorf("backtest: %s: line %d: value: %w", name, line, err)
+			return fmt.Errorf("line %d: value: %w", line, err)
 		}
+		if err := fn(line, ts, v); err != nil {
+			return err
+		}
+	}
+}
+
+// ReadCSV reads one series from a CSV as ReadRows does. Points keep file
+// order; steps may be irregular. A malformed row or a value that is not
+// finite is an error naming its line; a series needs at least two points.
+func ReadCSV(r io.Reader, name string) (*Series, error) {
+	s := &Series{Name: name}
+	err := ReadRows(r, func(line int, ts int64, v float64) error {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, fmt.Errorf("backtest: %s: line %d: value %q is not finite", name, line, rec[vi])
+			return fmt.Errorf("line %d: value %v is not finite", line, v)
 		}
 		s.T = append(s.T, ts)
 		s.V = append(s.V, v)
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("backtest: %s: %w", name, err)
 	}
 	if len(s.T) < 2 {
 		return nil, fmt.Errorf("backtest: %s: %d points, need at least 2", name, len(s.T))
@@ -122,8 +137,8 @@ func LoadFile(path string) (*Series, error) {
 	return ReadCSV(f, strings.TrimSuffix(base, filepath.Ext(base)))
 }
 
-// parseTime reads the timestamp forms ReadCSV accepts and returns unix ms.
-func parseTime(s string) (int64, error) {
+// ParseTime reads the timestamp forms of ReadRows and returns unix ms.
+func ParseTime(s string) (int64, error) {
 	s = strings.TrimSpace(s)
 	if t, err := time.Parse(time.DateTime, s); err == nil {
 		return t.UnixMilli(), nil
