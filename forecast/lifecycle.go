@@ -20,6 +20,8 @@ import (
 //	Closing → Open     when it climbs back to CloseAt (no event)
 //	Closing → Quiet    after Release below CloseAt: Resolved
 //
+// Within ReopenWindow of a resolution, Pending → Open needs ReopenHold.
+//
 // While open, Updated is published when the outlook changed materially (the
 // probability by 0.1 or more, or the ETA by more than a tenth of the time
 // that remained to it) and not more often than once per Confirm. Opened
@@ -44,7 +46,7 @@ func Advance(inc *state.Incident, r *Rule, p Projection, at int64, newID func() 
 			inc.Phase, inc.Since, inc.Threshed = state.Quiet, at, 0
 			return "", false
 		}
-		return confirmOpen(inc, prob, p.ETA, at, confirm, newID)
+		return confirmOpen(inc, prob, p.ETA, at, reopenHold(inc, at, confirm), newID)
 
 	case state.Open:
 		if prob < closeAt {
@@ -75,8 +77,37 @@ func Advance(inc *state.Incident, r *Rule, p Projection, at int64, newID func() 
 			return "", false
 		}
 		inc.Phase, inc.Since, inc.Threshed = state.Pending, at, at
-		return confirmOpen(inc, prob, p.ETA, at, confirm, newID)
+		return confirmOpen(inc, prob, p.ETA, at, reopenHold(inc, at, confirm), newID)
 	}
+}
+
+// Within ReopenWindow after an incident resolved, a new one on the same
+// rule and series opens only after its projection has held for
+// ReopenHold (or Confirm, if longer): an outlook that wavers around the
+// threshold would otherwise resolve and reopen again and again. With the
+// hold as long as the window, no incident reopens within two hours of its
+// predecessor's resolution; one whose projection has held all that while
+// opens as the window ends.
+const (
+	ReopenWindow = 2 * time.Hour
+	ReopenHold   = 2 * time.Hour
+)
+
+// reopenHold is how long the projection must hold before inc opens at at.
+func reopenHold(inc *state.Incident, at, confirm int64) int64 {
+	if Recent(inc, at) {
+		return max(confirm, ReopenHold.Milliseconds())
+	}
+	return confirm
+}
+
+// Recent reports whether inc, not open now, resolved no more than
+// ReopenWindow before at; the caller keeps such an incident rather than
+// dropping it, so that the longer hold applies.
+func Recent(inc *state.Incident, at int64) bool {
+	return inc != nil && inc.ID != [16]byte{} && inc.Emitted != 0 &&
+		(inc.Phase == state.Quiet || inc.Phase == state.Pending) &&
+		at-inc.Emitted <= ReopenWindow.Milliseconds()
 }
 
 // confirmOpen opens a pending incident once its projection has held for

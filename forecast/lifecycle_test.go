@@ -107,21 +107,43 @@ func TestAdvance(t *testing.T) {
 	}
 }
 
-// A new episode after a resolution gets a new id.
+// A new episode after a resolution gets a new id; within ReopenWindow of
+// the resolution it needs ReopenHold to open.
 func TestAdvanceNewEpisode(t *testing.T) {
 	r := Rule{Confirm: time.Minute, Release: time.Minute}
-	var inc state.Incident
-	n := byte(0)
-	newID := func() [16]byte { n++; return [16]byte{n} }
-	seq := []float64{0.9, 0.9, 0.1, 0.1, 0.9, 0.9}
-	var ids [][16]byte
-	for i, p := range seq {
-		if st, ok := Advance(&inc, &r, Projection{Probability: p}, int64(i)*60_000, newID); ok && st == Opened {
-			ids = append(ids, inc.ID)
-		}
+	const minute = int64(60_000)
+	tests := []struct {
+		name     string
+		back     int64 // minute the probability returns after resolving at minute 3
+		reopenAt int64 // minute the second incident opens
+	}{
+		{"after the window", 3 + 121, 3 + 122},
+		{"within the window", 3 + 10, 3 + 121}, // just after the window
 	}
-	if len(ids) != 2 || ids[0] == ids[1] {
-		t.Errorf("opened ids %x", ids)
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			var inc state.Incident
+			n := byte(0)
+			newID := func() [16]byte { n++; return [16]byte{n} }
+			var ids [][16]byte
+			var opened []int64
+			for m := int64(0); m <= tc.back+150; m++ {
+				p := 0.1
+				if m < 2 || m >= tc.back {
+					p = 0.9
+				}
+				if st, ok := Advance(&inc, &r, Projection{Probability: p}, m*minute, newID); ok && st == Opened {
+					ids = append(ids, inc.ID)
+					opened = append(opened, m)
+				}
+			}
+			if len(ids) != 2 || ids[0] == ids[1] {
+				t.Fatalf("opened ids %x", ids)
+			}
+			if opened[1] != tc.reopenAt {
+				t.Errorf("reopened at minute %d, want %d", opened[1], tc.reopenAt)
+			}
+		})
 	}
 }
 

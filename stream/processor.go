@@ -334,7 +334,7 @@ func (w *Worker) evaluate(se *state.Series) {
 		if emit {
 			w.publishBreach(se, r, fc, proj, st, inc)
 		}
-		if inc.Phase == state.Quiet {
+		if inc.Phase == state.Quiet && !forecast.Recent(inc, closed) {
 			se.DropIncident(uint16(i))
 		}
 	}
