@@ -30,6 +30,7 @@ func (sc *Scratch) load(v *state.View) int {
 	nv := min(len(v.T), len(v.Y), len(v.W))
 	sc.reset(nv)
 	sc.ng = 0
+	sc.pts, sc.cnt = [maxGroups]float64{}, [maxGroups]float64{}
 	k := 0
 	last := math.Inf(-1)
 	for i := 0; i < nv; i++ {
@@ -44,10 +45,28 @@ func (sc *Scratch) load(v *state.View) int {
 		last = t
 		sc.x[k] = t / 3600
 		sc.y[k] = y
-		sc.grp[k] = sc.group(w)
+		g := sc.group(w)
+		sc.grp[k] = g
+		if i < len(v.N) {
+			sc.pts[g] += float64(v.N[i])
+		} else {
+			sc.pts[g] += w // no counts: as if points came at a steady rate
+		}
+		sc.cnt[g]++
 		k++
 	}
 	return k
+}
+
+// points is the mean number of raw points in a bucket of group g: what
+// the variance of a bucket mean scales with. A series sampled every five
+// minutes has one point in each non-empty one-minute bucket and twelve in
+// an hourly one, not sixty.
+func (sc *Scratch) points(g int) float64 {
+	if sc.cnt[g] > 0 && sc.pts[g] > 0 {
+		return sc.pts[g] / sc.cnt[g]
+	}
+	return sc.width[g]
 }
 
 // group returns the resolution group of a bucket width, adding one when
@@ -91,8 +110,9 @@ func (sc *Scratch) standardize(n int) {
 		}
 	}
 	sc.kappa = sc.autocorrelation(n, &sd)
-	// The variance of a one-hour bucket, from the best-supported group
-	// (white noise scales as 1/width); used for groups too thin to tell.
+	// The variance of one raw point, from the best-supported group (white
+	// noise in a bucket mean scales as 1/points); used for groups too thin
+	// to tell.
 	ref := -1
 	for g := 0; g < sc.ng; g++ {
 		if cnt[g] >= minDiffs && sd[g] > 0 && (ref < 0 || cnt[g] > cnt[ref]) {
@@ -101,10 +121,10 @@ func (sc *Scratch) standardize(n int) {
 	}
 	var unit float64
 	if ref >= 0 {
-		unit = sd[ref] * sd[ref] * sc.width[ref]
+		unit = sd[ref] * sd[ref] * sc.points(ref)
 	} else {
 		for i := 1; i < n; i++ {
-			wi, wj := sc.width[grp[i]], sc.width[grp[i-1]]
+			wi, wj := sc.points(int(grp[i])), sc.points(int(grp[i-1]))
 			buf[i-1] = (y[i] - y[i-1]) / math.Sqrt(1/wi+1/wj)
 		}
 		s := diffScale(buf[:n-1])
@@ -112,7 +132,7 @@ func (sc *Scratch) standardize(n int) {
 	}
 	for g := 0; g < sc.ng; g++ {
 		if cnt[g] < minDiffs || sd[g] == 0 {
-			sd[g] = math.Sqrt(unit / sc.width[g])
+			sd[g] = math.Sqrt(unit / sc.points(g))
 		}
 	}
 

@@ -13,10 +13,12 @@ type Scratch struct {
 	buf []float64 // selection work space
 	suf []moments // suffix sums for the changepoint scan
 
-	// Per resolution group: bucket width in hours, standardized variance.
-	width [maxGroups]float64
-	vg    [maxGroups]float64
-	ng    int
+	// Per resolution group: bucket width in hours, standardized variance,
+	// raw points and buckets.
+	width    [maxGroups]float64
+	vg       [maxGroups]float64
+	pts, cnt [maxGroups]float64
+	ng       int
 
 	// The standardization y = (value − ref)/scale − trend·x, the
 	// standardized variance of one bucket of the newest resolution, and the
