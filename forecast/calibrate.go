@@ -79,20 +79,11 @@ func (c Calibration) Apply(cs *state.Calibration, v *state.View, f *Forecast) {
 		}
 		cs.Due[k] = 0 // scored, or its value is gone: either way done
 	}
-	f.ScaleLower, f.ScaleUpper = scaleOf(cs.Scale[0]), scaleOf(cs.Scale[1])
-	f.FarLower, f.FarUpper = f.ScaleLower, f.ScaleUpper
-	if cs.Scale[2] > 0 {
-		f.FarLower = scaleOf(cs.Scale[2])
-	}
-	if cs.Scale[3] > 0 {
-		f.FarUpper = scaleOf(cs.Scale[3])
-	}
-	f.NearAt, f.FarAt = checkHorizons[0].Seconds(), checkHorizons[1].Seconds()
-	f.TailLower = tails[0] * scaleOf(cs.Scale[4])
-	f.TailUpper = tails[1] * scaleOf(cs.Scale[5])
+	c.Use(cs, f)
 
-	// New checks are set aside before calibration, so that they measure
-	// the engine's own bands.
+	// A check keeps the engine's mean and standard deviation, which no
+	// scale touches, so that scoring measures the raw error against the
+	// scales then in force.
 	for k, h := range checkHorizons {
 		if cs.Due[k] != 0 {
 			continue
@@ -105,6 +96,26 @@ func (c Calibration) Apply(cs *state.Calibration, v *state.View, f *Forecast) {
 		cs.Due[k] = f.Origin + h.Milliseconds()
 		cs.Mean[k], cs.SD[k] = float32(m), float32(sd)
 	}
+}
+
+// Use applies the scales of cs to f without scoring or setting aside
+// checks: for a second forecast of the same series, such as one by the
+// engine a rule names.
+func (Calibration) Use(cs *state.Calibration, f *Forecast) {
+	if cs == nil || f == nil {
+		return
+	}
+	f.ScaleLower, f.ScaleUpper = scaleOf(cs.Scale[0]), scaleOf(cs.Scale[1])
+	f.FarLower, f.FarUpper = f.ScaleLower, f.ScaleUpper
+	if cs.Scale[2] > 0 {
+		f.FarLower = scaleOf(cs.Scale[2])
+	}
+	if cs.Scale[3] > 0 {
+		f.FarUpper = scaleOf(cs.Scale[3])
+	}
+	f.NearAt, f.FarAt = checkHorizons[0].Seconds(), checkHorizons[1].Seconds()
+	f.TailLower = positive(f.TailLower) * scaleOf(cs.Scale[4])
+	f.TailUpper = positive(f.TailUpper) * scaleOf(cs.Scale[5])
 }
 
 // score moves the scales after check k (0 near, 1 far) whose value was z

@@ -315,9 +315,7 @@ func (w *Worker) evaluate(se *state.Series) {
 			}
 			// The series' calibration speaks of its errors, whichever
 			// engine forecasts them.
-			w.alt.ScaleLower, w.alt.ScaleUpper = w.fc.ScaleLower, w.fc.ScaleUpper
-			w.alt.FarLower, w.alt.FarUpper = w.fc.FarLower, w.fc.FarUpper
-			w.alt.NearAt, w.alt.FarAt = w.fc.NearAt, w.fc.FarAt
+			p.cfg.Calibration.Use(&memo.Calib, &w.alt)
 			fc = &w.alt
 		}
 		proj := forecast.Project(fc, r)
