@@ -252,3 +252,44 @@ func TestRulesBySelector(t *testing.T) {
 		}
 	}
 }
+
+// TestRecordsExplainCycles: a queue with a daily cycle (invented scenario
+// data, five days at one point a minute) gets forecast records from the
+// periodic engine that carry its evidence, and a rule whose threshold lies
+// well above the peaks opens nothing, while one below the coming peak
+// (after the warm-up) does.
+func TestRecordsExplainCycles(t *testing.T) {
+	var s sink
+	all, _ := forecast.ParseMatch("")
+	rules := []forecast.Rule{
+		{Name: "high", Match: all, Threshold: 4500, Direction: forecast.Above, Horizon: 24 * time.Hour},
+		{Name: "peak", Match: all, Threshold: 3200, Direction: forecast.Above, Horizon: 24 * time.Hour},
+	}
+	p := newProc(t, &s, rules)
+	w := p.NewWorker()
+	rng := rand.New(rand.NewPCG(5, 6))
+	start := time.Date(2026, 11, 15, 0, 0, 0, 0, time.UTC)
+	for m := 0; m < 5*24*60; m++ {
+		h := float64(m) / 60
+		v := 2000 + 1500*math.Sin(2*math.Pi*h/24) + 60*rng.NormFloat64()
+		if err := w.Add("queue_depth", nil, start.Add(time.Duration(m)*time.Minute).UnixMilli(), v); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if len(s.forecasts) == 0 {
+		t.Fatal("no forecast records")
+	}
+	last := s.forecasts[len(s.forecasts)-1]
+	if last.Engine != "tide" || last.CycleSeconds != 86400 || !(last.ACF > 0.5) || last.Since == "" {
+		t.Errorf("last record: engine %q, cycle %v s, autocorrelation %v, since %q", last.Engine, last.CycleSeconds, last.ACF, last.Since)
+	}
+	opened := map[string]int{}
+	for _, b := range s.breaches {
+		if b.State == string(forecast.Opened) {
+			opened[b.Rule]++
+		}
+	}
+	if opened["high"] != 0 || opened["peak"] == 0 {
+		t.Errorf("opened by rule %v, want none for high and some for peak", opened)
+	}
+}
