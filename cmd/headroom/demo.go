@@ -310,8 +310,13 @@ func (p *printer) handle(m *nats.Msg) {
 		}
 		p.lastHour[r.Series] = hour
 		last := r.Points[len(r.Points)-1]
-		fmt.Fprintf(p.w, "%s  forecast  %-58s now %s  trend %s/h  in %s: %s (80%%: %s to %s)\n",
-			at.Format("Jan 02 15:04"), r.Series, num(r.Level), signed(r.TrendPerHour), r.Horizon, num(last.Mean), num(last.Lower80), num(last.Upper80))
+		now := "now " + num(r.Level)
+		if r.CycleSeconds > 0 {
+			// A periodic forecast's level is the middle of its cycle.
+			now = fmt.Sprintf("%s cycle around %s", strings.TrimSuffix(strings.TrimSuffix(time.Duration(r.CycleSeconds*float64(time.Second)).String(), "0s"), "0m"), num(r.Level))
+		}
+		fmt.Fprintf(p.w, "%s  forecast  %-58s %s  trend %s/h  in %s: %s (80%%: %s to %s)\n",
+			at.Format("Jan 02 15:04"), r.Series, now, signed(r.TrendPerHour), r.Horizon, num(last.Mean), num(last.Lower80), num(last.Upper80))
 	case "breach":
 		var r stream.BreachRecord
 		if json.Unmarshal(m.Data, &r) != nil {
