@@ -177,16 +177,24 @@ func (o *outlook) crossing(z, span float64) (float64, bool) {
 	if !beyond(span) {
 		return 0, false
 	}
-	lo, hi := 0.0, span
+	return bisect(beyond, 0, span), true
+}
+
+// bisect narrows [lo, hi], with beyond false at lo and true at hi, to the
+// first dt where beyond holds, to the precision of float64.
+func bisect(beyond func(float64) bool, lo, hi float64) float64 {
 	for range 100 {
 		mid := (lo + hi) / 2
+		if mid <= lo || mid >= hi {
+			break
+		}
 		if beyond(mid) {
 			hi = mid
 		} else {
 			lo = mid
 		}
 	}
-	return hi, true
+	return hi
 }
 
 // out reports, from a bound that costs O(1), that the bound
@@ -234,16 +242,7 @@ func scanCrossing(beyond func(float64) bool, span, step float64) (float64, bool)
 			prev = t
 			continue
 		}
-		lo, hi := prev, t
-		for range 60 {
-			mid := (lo + hi) / 2
-			if beyond(mid) {
-				hi = mid
-			} else {
-				lo = mid
-			}
-		}
-		return hi, true
+		return bisect(beyond, prev, t), true
 	}
 	return 0, false
 }
