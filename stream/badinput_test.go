@@ -143,7 +143,7 @@ func TestBadInputOnTheBus(t *testing.T) {
 		mu.Lock()
 		n := uint64(len(rejects))
 		mu.Unlock()
-		if n >= proc.Stats().Rejected {
+		if st := proc.Stats(); st.Messages == uint64(len(messages)) && n == st.Rejected && n > 0 {
 			break
 		}
 		time.Sleep(10 * time.Millisecond)
