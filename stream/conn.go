@@ -181,6 +181,11 @@ func checkUserInfo(addr string) error {
 	return nil
 }
 
+// Redact returns addr, one NATS URL or a comma-separated list, with the
+// user information of every URL (user, password or token) replaced, for
+// logs and messages.
+func Redact(addr string) string { return redact(addr) }
+
 // redact removes the user information from every URL in a
 // comma-separated list before it is shown. It reads as user information
 // everything up to the last '@' after a "://", whatever the characters,

@@ -137,7 +137,8 @@ func (sc *sidecar) run(ctx context.Context) error {
 	}
 	in := stream.Ingest{Conn: nc, Subject: subjects.Points(), Processor: proc, Subscribers: sc.eng.subscribers, Log: sc.log}
 	if sc.ready != nil {
-		url := nc.ConnectedUrlRedacted()
+		// The client's own redaction hides a password, not a token.
+		url := stream.Redact(nc.ConnectedUrl())
 		if sc.embedded != nil {
 			url = sc.embedded.URL()
 		}
