@@ -41,8 +41,8 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	fs.StringVar(&sc.dial.URL, "nats", "", "URL of an existing NATS server; empty starts an embedded one")
 	fs.StringVar(&sc.dial.Creds, "creds", "", "NATS credentials file")
 	fs.StringVar(&sc.dial.User, "user", "", "NATS user")
-	fs.StringVar(&sc.dial.Password, "password", "", "NATS password (or set HEADROOM_NATS_PASSWORD)")
-	fs.StringVar(&sc.dial.Token, "token", "", "NATS token (or set HEADROOM_NATS_TOKEN)")
+	fs.StringVar(&sc.dial.Password, "password", "", "NATS password; prefer HEADROOM_NATS_PASSWORD, as other users can read command lines")
+	fs.StringVar(&sc.dial.Token, "token", "", "NATS token; prefer HEADROOM_NATS_TOKEN, as other users can read command lines")
 	fs.StringVar(&sc.dial.NKeySeed, "nkey", "", "file holding the NKey seed for NATS")
 	fs.StringVar(&sc.dial.TLSCA, "tls-ca", "", "CA bundle that signs the NATS server's certificate")
 	fs.StringVar(&sc.dial.TLSCert, "tls-cert", "", "client certificate for NATS")
@@ -97,6 +97,10 @@ func (sc *sidecar) run(ctx context.Context) error {
 		}
 		if port == 0 {
 			port = -1
+		}
+		if ip := net.ParseIP(host); host != "localhost" && (ip == nil || !ip.IsLoopback()) {
+			// The embedded server has no authentication of its own.
+			sc.log.Warn().Str("listen", sc.listen).Msg("the embedded NATS server accepts anyone who can reach this address; bind it to loopback or run a NATS server with authentication")
 		}
 		if err := os.MkdirAll(sc.dataDir, 0o750); err != nil {
 			return fmt.Errorf("data directory: %w", err)
