@@ -152,7 +152,7 @@ func (sc *sidecar) run(ctx context.Context) error {
 	defer stopIngest()
 	errc := make(chan error, 1)
 	go func() { errc <- in.Run(ingestCtx) }()
-	sc.logStats(ctx, proc, store.Len)
+	sc.logStats(ctx, proc, pub, store.Len)
 	stopIngest()
 	err = <-errc
 	// Flush what was published so consumers get every record before we go.
@@ -167,10 +167,10 @@ func (sc *sidecar) run(ctx context.Context) error {
 
 // logStats logs the counters once a minute until ctx is done, so an
 // operator sees the rates without scraping anything.
-func (sc *sidecar) logStats(ctx context.Context, proc *stream.Processor, series func() int) {
+func (sc *sidecar) logStats(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, series func() int) {
 	t := time.NewTicker(time.Minute)
 	defer t.Stop()
-	prev, last := proc.Stats(), time.Now()
+	prev, last, failed := proc.Stats(), time.Now(), pub.Failed()
 	for {
 		select {
 		case <-ctx.Done():
@@ -180,8 +180,9 @@ func (sc *sidecar) logStats(ctx context.Context, proc *stream.Processor, series 
 			secs := now.Sub(last).Seconds()
 			sc.log.Info().Float64("points_per_s", float64(st.Points-prev.Points)/secs).
 				Uint64("rejected", st.Rejected-prev.Rejected).Uint64("forecasts", st.Forecasts-prev.Forecasts).
-				Uint64("breaches", st.Breaches-prev.Breaches).Int("series", series()).Msg("last minute")
-			prev, last = st, now
+				Uint64("breaches", st.Breaches-prev.Breaches).Uint64("publish_failed", pub.Failed()-failed).
+				Int("series", series()).Msg("last minute")
+			prev, last, failed = st, now, pub.Failed()
 		}
 	}
 }
