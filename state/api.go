@@ -30,6 +30,7 @@ type Config struct {
 	MaxSeries  int           // limit over all partitions; default 1,000,000
 	Lateness   time.Duration // how far behind its newest point a series accepts points; default one finest bucket; at most three
 	ChunkSize  int           // series per slab chunk allocated at once; default 1024
+	IdleExpiry time.Duration // Expire removes series idle longer than this, in event time (see Expire); 0 never
 }
 
 // Errors a point can be rejected with. Callers test them with errors.Is; the

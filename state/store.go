@@ -16,6 +16,7 @@ type Store struct {
 	parts []partition
 	mask  uint64       // len(parts)-1 when that is a power of two, else 0
 	n     atomic.Int64 // live series over all partitions
+	exp   expiry       // idle series expiry (expire.go)
 }
 
 // New returns an empty Store sized by cfg, after filling its defaults and
@@ -28,6 +29,9 @@ func New(cfg Config) (*Store, error) {
 	s := &Store{cfg: c, parts: make([]partition, c.partitions)}
 	if n := c.partitions; n&(n-1) == 0 {
 		s.mask = uint64(n - 1)
+	}
+	if err := s.exp.init(cfg.IdleExpiry, c.partitions); err != nil {
+		return nil, err
 	}
 	return s, nil
 }
@@ -99,6 +103,9 @@ func (s *Store) addLocked(p *partition, k Key, ts int64, v float64, onClose func
 	closed, err := c.add(row, ts, v)
 	if err != nil {
 		return err
+	}
+	if s.exp.clocks != nil {
+		s.exp.saw(s.partIndex(k.Hash), ts)
 	}
 	if closed && onClose != nil {
 		onClose(&c.series[row])
@@ -184,12 +191,7 @@ func (s *Store) Delete(k Key) bool {
 	if !ok {
 		return false
 	}
-	c, row := p.at(ref)
-	se := &c.series[row]
-	*se = Series{ch: se.ch, row: se.row, incidents: se.incidents[:0]}
-	c.hot[row] = hot{} // matches no key; reset clears the rest for the next series
-	p.free = append(p.free, ref)
-	s.n.Add(-1)
+	s.drop(p, ref)
 	return true
 }
 
