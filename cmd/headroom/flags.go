@@ -96,6 +96,7 @@ func (r *ruleFlags) rules() ([]forecast.Rule, error) {
 type engineFlags struct {
 	partitions  int
 	maxSeries   int
+	idleExpiry  time.Duration
 	lateness    time.Duration
 	every       time.Duration
 	history     time.Duration
@@ -110,6 +111,7 @@ type engineFlags struct {
 func (e *engineFlags) register(fs *flag.FlagSet, bus bool) {
 	fs.IntVar(&e.partitions, "partitions", 64, "state partitions (series map to them by a stable hash)")
 	fs.IntVar(&e.maxSeries, "max-series", 1_000_000, "most series kept; new series beyond it are rejected")
+	fs.DurationVar(&e.idleExpiry, "idle-expiry", 14*24*time.Hour, "forget a series that has sent nothing for this long, in the data's own time (0: never)")
 	fs.DurationVar(&e.lateness, "lateness", time.Minute, "how far behind a series' newest point a point is still merged")
 	fs.DurationVar(&e.every, "every", time.Minute, "evaluate forecasts and rules once per this much data time")
 	fs.DurationVar(&e.history, "history", 0, "most history the engines look at (0: all the state keeps, two weeks)")
@@ -124,7 +126,7 @@ func (e *engineFlags) register(fs *flag.FlagSet, bus bool) {
 }
 
 func (e *engineFlags) store() (*state.Store, error) {
-	return state.New(state.Config{Partitions: e.partitions, MaxSeries: e.maxSeries, Lateness: e.lateness})
+	return state.New(state.Config{Partitions: e.partitions, MaxSeries: e.maxSeries, Lateness: e.lateness, IdleExpiry: e.idleExpiry})
 }
 
 func (e *engineFlags) config(rules []forecast.Rule, horizon time.Duration, engine string) stream.Config {

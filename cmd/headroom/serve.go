@@ -13,6 +13,7 @@ import (
 	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/forecast"
+	"github.com/headroom-dev/headroom/state"
 	"github.com/headroom-dev/headroom/stream"
 )
 
@@ -152,7 +153,7 @@ func (sc *sidecar) run(ctx context.Context) error {
 	defer stopIngest()
 	errc := make(chan error, 1)
 	go func() { errc <- in.Run(ingestCtx) }()
-	sc.logStats(ctx, proc, pub, store.Len)
+	sc.tend(ctx, proc, pub, store)
 	stopIngest()
 	err = <-errc
 	// Flush what was published so consumers get every record before we go.
@@ -165,24 +166,31 @@ func (sc *sidecar) run(ctx context.Context) error {
 	return err
 }
 
-// logStats logs the counters once a minute until ctx is done, so an
-// operator sees the rates without scraping anything.
-func (sc *sidecar) logStats(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, series func() int) {
-	t := time.NewTicker(time.Minute)
-	defer t.Stop()
-	prev, last, failed := proc.Stats(), time.Now(), pub.Failed()
+// tend sweeps idle series out of the store every few seconds and logs the
+// counters once a minute, so an operator sees the rates without scraping
+// anything, until ctx is done.
+func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, store *state.Store) {
+	sweep := time.NewTicker(5 * time.Second)
+	defer sweep.Stop()
+	report := time.NewTicker(time.Minute)
+	defer report.Stop()
+	prev, last, failed, expired := proc.Stats(), time.Now(), pub.Failed(), 0
 	for {
 		select {
 		case <-ctx.Done():
 			return
-		case now := <-t.C:
+		case now := <-sweep.C:
+			// The wall clock caps the reference, so one point stamped far
+			// ahead cannot make every other series look idle.
+			expired += store.Expire(now.UnixMilli())
+		case now := <-report.C:
 			st := proc.Stats()
 			secs := now.Sub(last).Seconds()
 			sc.log.Info().Float64("points_per_s", float64(st.Points-prev.Points)/secs).
 				Uint64("rejected", st.Rejected-prev.Rejected).Uint64("forecasts", st.Forecasts-prev.Forecasts).
 				Uint64("breaches", st.Breaches-prev.Breaches).Uint64("publish_failed", pub.Failed()-failed).
-				Int("series", series()).Msg("last minute")
-			prev, last, failed = st, now, pub.Failed()
+				Int("expired", expired).Int("series", store.Len()).Msg("last minute")
+			prev, last, failed, expired = st, now, pub.Failed(), 0
 		}
 	}
 }
