@@ -1,7 +1,6 @@
 package stream_test
 
 import (
-	"context"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -24,36 +23,14 @@ import (
 // its reason and a capped copy of the payload, is counted, and costs the
 // good points nothing.
 func TestBadInputOnTheBus(t *testing.T) {
-	ctx := context.Background()
-	emb, err := stream.StartEmbedded(ctx, stream.EmbeddedConfig{Port: -1, Log: zerolog.Nop()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(emb.Shutdown)
-	nc, err := stream.Dial{URL: emb.URL(), Log: zerolog.Nop()}.Connect(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(nc.Close)
-	store, err := state.New(state.Config{Partitions: 2, MaxSeries: 3})
-	if err != nil {
-		t.Fatal(err)
-	}
 	now := time.Date(2026, 12, 1, 12, 0, 0, 0, time.UTC)
-	proc, err := stream.NewProcessor(store, stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop()), stream.Config{
+	pl := startPipeline(t, state.Config{Partitions: 2, MaxSeries: 3}, stream.Config{
 		Limits: stream.Limits{MaxMessage: 4096, MaxPoints: 20},
 		Now:    func() time.Time { return now },
+	}, func(nc *nats.Conn) stream.Emitter {
+		return stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop())
 	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	rctx, cancel := context.WithCancel(ctx)
-	done := make(chan error, 1)
-	ready := make(chan struct{})
-	in := stream.Ingest{Conn: nc, Processor: proc, Log: zerolog.Nop(), Ready: func() { close(ready) }}
-	go func() { done <- in.Run(rctx) }()
-	<-ready
-	t.Cleanup(func() { cancel(); <-done })
+	emb, store, proc := pl.emb, pl.store, pl.proc
 
 	var mu sync.Mutex
 	var rejects []stream.RejectRecord

@@ -1,7 +1,6 @@
 package stream_test
 
 import (
-	"context"
 	"fmt"
 	"math"
 	"runtime"
@@ -10,7 +9,6 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go"
-	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/state"
 	"github.com/headroom-dev/headroom/stream"
@@ -27,33 +25,11 @@ func TestSeriesChurnOnTheBus(t *testing.T) {
 		waves = 12
 	}
 	const perWave, limit = 1000, 2500
-	ctx := context.Background()
-	emb, err := stream.StartEmbedded(ctx, stream.EmbeddedConfig{Port: -1, Log: zerolog.Nop()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(emb.Shutdown)
-	nc, err := stream.Dial{URL: emb.URL(), Log: zerolog.Nop()}.Connect(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(nc.Close)
-	store, err := state.New(state.Config{Partitions: 4, MaxSeries: limit, IdleExpiry: 30 * time.Minute})
-	if err != nil {
-		t.Fatal(err)
-	}
 	var s rejectsOnly
-	proc, err := stream.NewProcessor(store, &s, stream.Config{Limits: stream.Limits{MaxFuture: -1, MaxPast: -1}})
-	if err != nil {
-		t.Fatal(err)
-	}
-	rctx, cancel := context.WithCancel(ctx)
-	done := make(chan error, 1)
-	ready := make(chan struct{})
-	in := stream.Ingest{Conn: nc, Processor: proc, Log: zerolog.Nop(), Ready: func() { close(ready) }}
-	go func() { done <- in.Run(rctx) }()
-	<-ready
-	t.Cleanup(func() { cancel(); <-done })
+	pl := startPipeline(t, state.Config{Partitions: 4, MaxSeries: limit, IdleExpiry: 30 * time.Minute},
+		stream.Config{Limits: stream.Limits{MaxFuture: -1, MaxPast: -1}},
+		func(*nats.Conn) stream.Emitter { return &s })
+	emb, store, proc := pl.emb, pl.store, pl.proc
 
 	p, err := nats.Connect(emb.URL())
 	if err != nil {

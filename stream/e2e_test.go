@@ -18,16 +18,19 @@ import (
 	"github.com/headroom-dev/headroom/stream"
 )
 
-// sidecar is a test sidecar on a real embedded nats-server bound to a free
-// loopback port.
-type sidecar struct {
-	emb  *stream.Embedded
-	nc   *nats.Conn // the sidecar's connection
-	proc *stream.Processor
-	stop func()
+// pipeline is a Processor fed by Ingest from a real embedded nats-server
+// bound to a free loopback port.
+type pipeline struct {
+	emb   *stream.Embedded
+	nc    *nats.Conn // the pipeline's connection
+	store *state.Store
+	proc  *stream.Processor
+	stop  func()
 }
 
-func startSidecar(t testing.TB, rules []forecast.Rule, cfg stream.Config) *sidecar {
+// startPipeline starts a server, a store and a processor writing to what
+// emit makes of the connection, and ingests until the test ends.
+func startPipeline(t testing.TB, scfg state.Config, cfg stream.Config, emit func(*nats.Conn) stream.Emitter) *pipeline {
 	t.Helper()
 	ctx := context.Background()
 	emb, err := stream.StartEmbedded(ctx, stream.EmbeddedConfig{Port: -1, DataDir: t.TempDir(), Log: zerolog.Nop()})
@@ -39,15 +42,11 @@ func startSidecar(t testing.TB, rules []forecast.Rule, cfg stream.Config) *sidec
 		emb.Shutdown()
 		t.Fatal(err)
 	}
-	store, err := state.New(state.Config{Partitions: 8, MaxSeries: 200_000})
+	store, err := state.New(scfg)
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg.Rules = rules
-	if cfg.Limits.MaxFuture == 0 {
-		cfg.Limits.MaxFuture = 400 * 24 * time.Hour
-	}
-	proc, err := stream.NewProcessor(store, stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop()), cfg)
+	proc, err := stream.NewProcessor(store, emit(nc), cfg)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -61,15 +60,29 @@ func startSidecar(t testing.TB, rules []forecast.Rule, cfg stream.Config) *sidec
 	case err := <-done:
 		t.Fatalf("ingest: %v", err)
 	}
-	sc := &sidecar{emb: emb, nc: nc, proc: proc}
-	sc.stop = func() {
+	pl := &pipeline{emb: emb, nc: nc, store: store, proc: proc}
+	pl.stop = func() {
 		cancel()
 		<-done
 		nc.Close()
 		emb.Shutdown()
 	}
-	t.Cleanup(sc.stop)
-	return sc
+	t.Cleanup(pl.stop)
+	return pl
+}
+
+// sidecar is a pipeline that publishes its records as JSON on the bus.
+type sidecar = pipeline
+
+func startSidecar(t testing.TB, rules []forecast.Rule, cfg stream.Config) *sidecar {
+	t.Helper()
+	cfg.Rules = rules
+	if cfg.Limits.MaxFuture == 0 {
+		cfg.Limits.MaxFuture = 400 * 24 * time.Hour
+	}
+	return startPipeline(t, state.Config{Partitions: 8, MaxSeries: 200_000}, cfg, func(nc *nats.Conn) stream.Emitter {
+		return stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop())
+	})
 }
 
 // collector gathers breach records from the bus.
