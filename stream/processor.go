@@ -39,7 +39,9 @@ type Config struct {
 	// Now is the wall clock, used only to judge absurd timestamps and to
 	// stamp reject records; default time.Now.
 	Now func() time.Time
-	// NewID makes incident and event ids; default random UUIDs.
+	// NewID, when set, makes incident and event ids in call order. By
+	// default ids are name-based UUIDs of what they name (see ids.go), so
+	// that replaying the same points gives the same ids.
 	NewID func() [16]byte
 	// Calibration tunes the online calibration of the bands; the zero
 	// value takes its defaults.
@@ -112,9 +114,6 @@ func NewProcessor(store *state.Store, emit Emitter, cfg Config) (*Processor, err
 	if cfg.Now == nil {
 		cfg.Now = time.Now
 	}
-	if cfg.NewID == nil {
-		cfg.NewID = func() [16]byte { return uuid.New() }
-	}
 	// A warm-up longer than the history the engines see could never end.
 	warmCap := time.Duration(0)
 	for _, l := range store.Layout() {
@@ -158,6 +157,12 @@ type Worker struct {
 	onClose func(*state.Series)
 	onPoint func(*Point)
 	onBad   func(Reject)
+	newID   func() [16]byte // incident ids for forecast.Advance
+
+	// the incident being advanced, which newID names
+	idSeries, idRule string
+	idAt             int64
+	idBuf            []byte
 
 	// per message
 	subject string
@@ -176,6 +181,10 @@ func (p *Processor) NewWorker() *Worker {
 	w.onClose = w.evaluate
 	w.onPoint = w.collect
 	w.onBad = w.reject
+	w.newID = p.cfg.NewID
+	if w.newID == nil {
+		w.newID = w.incidentID
+	}
 	return w
 }
 
@@ -328,7 +337,8 @@ func (w *Worker) evaluate(se *state.Series) {
 		if inc == nil {
 			continue
 		}
-		st, emit := forecast.Advance(inc, r, proj, closed, p.cfg.NewID)
+		w.idSeries, w.idRule, w.idAt = se.Key(), r.Name, closed
+		st, emit := forecast.Advance(inc, r, proj, closed, w.newID)
 		if emit {
 			w.publishBreach(se, r, fc, proj, st, inc)
 		}
@@ -336,6 +346,13 @@ func (w *Worker) evaluate(se *state.Series) {
 			se.DropIncident(uint16(i))
 		}
 	}
+}
+
+// incidentID names the incident being advanced.
+func (w *Worker) incidentID() [16]byte {
+	var id [16]byte
+	id, w.idBuf = incidentID(w.idBuf, w.idSeries, w.idRule, w.idAt)
+	return id
 }
 
 func (p *Processor) matchRules(key string) uint64 {
@@ -398,6 +415,12 @@ func (w *Worker) publishForecast(se *state.Series, memo *state.Memo) {
 
 func (w *Worker) publishBreach(se *state.Series, r *forecast.Rule, fc *forecast.Forecast, proj forecast.Projection, st forecast.EventState, inc *state.Incident) {
 	p := w.p
+	var id [16]byte
+	if p.cfg.NewID != nil {
+		id = p.cfg.NewID()
+	} else {
+		id, w.idBuf = eventID(w.idBuf, inc.ID, string(st), fc.Origin)
+	}
 	rec := BreachRecord{
 		Kind:        "breach",
 		Series:      se.Key(),
@@ -406,7 +429,7 @@ func (w *Worker) publishBreach(se *state.Series, r *forecast.Rule, fc *forecast.
 		State:       string(st),
 		At:          formatMs(fc.Origin),
 		Incident:    uuid.UUID(inc.ID).String(),
-		ID:          uuid.UUID(p.cfg.NewID()).String(),
+		ID:          uuid.UUID(id).String(),
 		Threshold:   r.Threshold,
 		Direction:   r.Direction.String(),
 		Horizon:     formatDuration(r.Horizon),
