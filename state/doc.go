@@ -27,4 +27,10 @@
 // FNV-1a hashes collide. AddBatch applies many points at once and loads the
 // memory they need in passes of independent reads before applying them,
 // so that their cache misses overlap.
+//
+// WriteSnapshot writes everything the series of a store hold, bit for bit,
+// with a few bytes of the caller's (where in its input the state stands),
+// and Restore rebuilds an equal store from it, possibly with another
+// number of partitions, so that a restarted process goes on exactly as if
+// it had never stopped.
 package state
