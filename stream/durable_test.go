@@ -1,0 +1,411 @@
+package stream_test
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"reflect"
+	"sort"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
+	"github.com/rs/zerolog"
+
+	"github.com/headroom-dev/headroom/forecast"
+	"github.com/headroom-dev/headroom/state"
+	"github.com/headroom-dev/headroom/stream"
+)
+
+// durableInput is an invented scenario fleet (scenario data): volumes that
+// fill at different rates, one cleaned up, and daily cycles, one point a
+// minute for two days, in messages of ten minutes of every series.
+func durableInput() [][]byte {
+	start := time.Date(2026, 11, 20, 0, 0, 0, 0, time.UTC)
+	rng := rand.New(rand.NewPCG(7, 7))
+	const series, minutes = 12, 2 * 24 * 60
+	var msgs [][]byte
+	var batch []wirePoint
+	for m := 0; m < minutes; m++ {
+		h := float64(m) / 60
+		for s := 0; s < series; s++ {
+			var v float64
+			switch {
+			case s < 6: // fills crossing 0.9 at 20 h, 30 h, ... 70 h
+				v = 0.3 + 0.6*h/float64(20+10*s)
+			case s == 6: // fills, then is cleaned up after a day
+				v = 0.5 + 0.02*h
+				if h > 24 {
+					v = 0.2
+				}
+			default: // daily cycles
+				v = 0.5 + 0.3*math.Sin(2*math.Pi*h/24+float64(s))
+			}
+			v += 0.003 * rng.NormFloat64()
+			batch = append(batch, wirePoint{"volume_used_ratio", map[string]string{"host": fmt.Sprintf("h%02d", s)},
+				start.Add(time.Duration(m) * time.Minute).UnixMilli(), v})
+		}
+		if (m+1)%10 == 0 {
+			b, err := json.Marshal(batch)
+			if err != nil {
+				panic(err)
+			}
+			msgs = append(msgs, b)
+			batch = batch[:0]
+		}
+	}
+	return msgs
+}
+
+func durableConfig(t *testing.T) stream.Config {
+	t.Helper()
+	m, err := forecast.ParseMatch("volume_used_ratio")
+	if err != nil {
+		t.Fatal(err)
+	}
+	return stream.Config{
+		Rules: []forecast.Rule{
+			{Name: "volume-full", Match: m, Threshold: 0.9, Direction: forecast.Above, Horizon: 12 * time.Hour, Warmup: -1},
+			{Name: "volume-low", Match: m, Threshold: 0.25, Direction: forecast.Below, Horizon: 6 * time.Hour, Warmup: -1},
+		},
+		Every:  5 * time.Minute,
+		Now:    func() time.Time { return time.Date(2026, 11, 23, 0, 0, 0, 0, time.UTC) },
+		Limits: stream.Limits{MaxFuture: 48 * time.Hour},
+	}
+}
+
+var durableStore = state.Config{Partitions: 4, MaxSeries: 1000}
+
+// records keeps copies of what a processor emits.
+type records struct {
+	mu        sync.Mutex
+	forecasts map[string]stream.ForecastRecord // newest per series
+	breaches  []stream.BreachRecord
+}
+
+func (r *records) Forecast(f *stream.ForecastRecord) {
+	c := *f
+	c.Points = append([]stream.ForecastPoint(nil), f.Points...)
+	r.mu.Lock()
+	if r.forecasts == nil {
+		r.forecasts = map[string]stream.ForecastRecord{}
+	}
+	r.forecasts[f.Series] = c
+	r.mu.Unlock()
+}
+
+func (r *records) Breach(b *stream.BreachRecord) {
+	r.mu.Lock()
+	r.breaches = append(r.breaches, *b)
+	r.mu.Unlock()
+}
+
+func (r *records) Reject(*stream.RejectRecord) {}
+
+// tee sends records to several emitters.
+type tee []stream.Emitter
+
+func (t tee) Forecast(r *stream.ForecastRecord) {
+	for _, e := range t {
+		e.Forecast(r)
+	}
+}
+func (t tee) Breach(r *stream.BreachRecord) {
+	for _, e := range t {
+		e.Breach(r)
+	}
+}
+func (t tee) Reject(r *stream.RejectRecord) {
+	for _, e := range t {
+		e.Reject(r)
+	}
+}
+
+// frozen is a Snapshots that stops keeping snapshots once frozen, as a
+// process that has crashed would: later saves leave the last one.
+type frozen struct {
+	stream.Snapshots
+	stop  atomic.Bool
+	saved atomic.Int64
+}
+
+func (f *frozen) Save(ctx context.Context, write func(io.Writer) error) error {
+	if f.stop.Load() {
+		return nil
+	}
+	f.saved.Add(1)
+	return f.Snapshots.Save(ctx, write)
+}
+
+// reference applies msgs in order to a fresh processor: the uninterrupted run.
+func reference(t *testing.T, msgs [][]byte) (*state.Store, *records) {
+	t.Helper()
+	store, err := state.New(durableStore)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rec records
+	p, err := stream.NewProcessor(store, &rec, durableConfig(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := p.NewWorker()
+	for _, m := range msgs {
+		w.Handle("headroom.points.fleet", m)
+	}
+	return store, &rec
+}
+
+// durableRun is one life of a durable sidecar.
+type durableRun struct {
+	d      *stream.Durable
+	nc     *nats.Conn
+	rec    *records
+	cancel context.CancelFunc
+	done   chan error
+}
+
+func startDurable(t *testing.T, url string, snaps stream.Snapshots) *durableRun {
+	t.Helper()
+	ctx := context.Background()
+	nc, err := stream.Dial{URL: url, Log: zerolog.Nop()}.Connect(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(nc.Close)
+	var (
+		store *state.Store
+		cp    stream.Checkpoint
+	)
+	if r, err := snaps.Load(ctx); err == nil {
+		store, cp, err = stream.ReadSnapshot(r, durableStore)
+		r.Close()
+		if err != nil {
+			t.Fatal(err)
+		}
+	} else if !errors.Is(err, stream.ErrNoSnapshot) {
+		t.Fatal(err)
+	} else if store, err = state.New(durableStore); err != nil {
+		t.Fatal(err)
+	}
+	pub := stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop())
+	if err := pub.UseJetStream(256); err != nil {
+		t.Fatal(err)
+	}
+	rec := &records{}
+	p, err := stream.NewProcessor(store, tee{pub, rec}, durableConfig(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p.Adopt(cp.Rules)
+	ready := make(chan struct{})
+	d := &stream.Durable{
+		Conn: nc, Processor: p, Snapshots: snaps, From: cp, Every: 20 * time.Millisecond,
+		Publisher: pub, Events: &stream.EventsStream{}, Ready: func() { close(ready) }, Log: zerolog.Nop(),
+	}
+	rctx, cancel := context.WithCancel(ctx)
+	run := &durableRun{d: d, nc: nc, rec: rec, cancel: cancel, done: make(chan error, 1)}
+	go func() { run.done <- d.Run(rctx) }()
+	select {
+	case <-ready:
+	case err := <-run.done:
+		t.Fatalf("durable ingest: %v", err)
+	}
+	return run
+}
+
+func publishJS(t *testing.T, js jetstream.JetStream, msgs [][]byte) uint64 {
+	t.Helper()
+	var seq uint64
+	for _, m := range msgs {
+		ack, err := js.Publish(context.Background(), "headroom.points.fleet", m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		seq = ack.Sequence
+	}
+	return seq
+}
+
+// TestDurableCrash stops a durable sidecar abruptly, after snapshots
+// stopped being kept, restarts it from its last snapshot and finishes
+// feeding it: its forecasts, incidents and events must be those of an
+// uninterrupted run on the same input.
+func TestDurableCrash(t *testing.T) {
+	msgs := durableInput()
+	refStore, ref := reference(t, msgs)
+
+	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: -1, DataDir: t.TempDir(), Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(emb.Shutdown)
+	snaps := &frozen{Snapshots: stream.DirSnapshots{Dir: t.TempDir()}}
+
+	// First life: the stream is created, 60 % of the input sent; saving
+	// snapshots stops at 30 %, and the sidecar dies at 60 %.
+	a := startDurable(t, emb.URL(), snaps)
+	js, err := jetstream.New(a.nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cut, freeze := len(msgs)*6/10, uint64(len(msgs)*3/10)
+	publishJS(t, js, msgs[:cut])
+	if !waitFor(t, 30*time.Second, func() bool { return a.d.Applied() >= freeze && snaps.saved.Load() > 0 }) {
+		t.Fatalf("first life applied %d messages, saved %d snapshots", a.d.Applied(), snaps.saved.Load())
+	}
+	snaps.stop.Store(true)
+	if !waitFor(t, 30*time.Second, func() bool { return a.d.Applied() == uint64(cut) }) {
+		t.Fatalf("first life applied %d of %d messages", a.d.Applied(), cut)
+	}
+	a.nc.Close() // nothing more gets out: no acknowledgement, no record
+	a.cancel()
+	<-a.done
+	snaps.stop.Store(false)
+
+	// Second life: restored, it replays from the snapshot and gets the rest.
+	b := startDurable(t, emb.URL(), snaps)
+	restored := b.d.From.Seq
+	if restored == 0 || restored >= uint64(cut) {
+		t.Fatalf("snapshot at sequence %d; want one between 0 and the crash at %d", restored, cut)
+	}
+	t.Logf("snapshot at sequence %d, crash at %d, %d messages replayed", restored, cut, uint64(cut)-restored)
+	js2, err := jetstream.New(b.nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	last := publishJS(t, js2, msgs[cut:])
+	if !waitFor(t, 30*time.Second, func() bool { return b.d.Applied() == last }) {
+		t.Fatalf("second life applied %d of %d messages", b.d.Applied(), last)
+	}
+	b.cancel()
+	if err := <-b.done; err != nil {
+		t.Fatal(err)
+	}
+	if last != uint64(len(msgs)) {
+		t.Fatalf("stream holds %d messages, sent %d", last, len(msgs))
+	}
+
+	compareStores(t, refStore, b.d.Processor.Store())
+
+	// The newest forecast of every series is the uninterrupted run's.
+	if len(b.rec.forecasts) != len(ref.forecasts) {
+		t.Errorf("%d series forecast after the restart, %d in the uninterrupted run", len(b.rec.forecasts), len(ref.forecasts))
+	}
+	for k, want := range ref.forecasts {
+		if got := b.rec.forecasts[k]; !reflect.DeepEqual(got, want) {
+			t.Errorf("%s: newest forecast differs:\n got %+v\nwant %+v", k, got, want)
+		}
+	}
+
+	// Every event of the uninterrupted run was emitted, the same, by one
+	// life or the other, and none else; replayed ones carry their ids.
+	want := map[string]stream.BreachRecord{}
+	for _, e := range ref.breaches {
+		want[e.ID] = e
+	}
+	got := map[string]stream.BreachRecord{}
+	for _, e := range append(a.rec.breaches, b.rec.breaches...) {
+		if w, ok := want[e.ID]; !ok || !reflect.DeepEqual(e, w) {
+			t.Errorf("event not in the uninterrupted run: %+v", e)
+		}
+		got[e.ID] = e
+	}
+	if len(got) != len(want) {
+		t.Errorf("%d distinct events, uninterrupted run %d", len(got), len(want))
+	}
+	open := 0
+	for _, e := range ref.breaches {
+		if e.State == "opened" {
+			open++
+		}
+	}
+	if open < 3 {
+		t.Errorf("the scenario opened %d incidents; it is meant to open several", open)
+	}
+
+	// The events stream holds each breach event once: the replayed copies
+	// were within its duplicate window.
+	cons, err := js2.OrderedConsumer(context.Background(), stream.DefaultEventsStream, jetstream.OrderedConsumerConfig{
+		FilterSubjects: []string{stream.Subjects{}.AllBreaches()},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	seen := map[string]int{}
+	for {
+		m, err := cons.Next(jetstream.FetchMaxWait(time.Second))
+		if err != nil {
+			break
+		}
+		var e stream.BreachRecord
+		if err := json.Unmarshal(m.Data(), &e); err != nil {
+			t.Fatal(err)
+		}
+		seen[e.ID]++
+	}
+	for id, n := range seen {
+		if n != 1 {
+			t.Errorf("event %s stored %d times", id, n)
+		}
+		if _, ok := want[id]; !ok {
+			t.Errorf("event %s stored but not in the uninterrupted run", id)
+		}
+	}
+	if len(seen) != len(want) {
+		t.Errorf("events stream holds %d breach events, want %d", len(seen), len(want))
+	}
+}
+
+// seriesState is what a series holds that forecasts and alerts depend on.
+type seriesState struct {
+	View      state.View
+	Memo      state.Memo
+	Incidents []state.Incident
+	Points    uint64
+	Newest    int64
+}
+
+func storeStates(s *state.Store) map[string]seriesState {
+	out := map[string]seriesState{}
+	for part := range s.Partitions() {
+		s.Range(part, func(se *state.Series) bool {
+			var st seriesState
+			se.View(&st.View, 0)
+			st.Memo = *se.Memo()
+			st.Incidents = append([]state.Incident{}, se.Incidents()...)
+			st.Points, st.Newest = se.Points(), se.Newest()
+			out[se.Key()] = st
+			return true
+		})
+	}
+	return out
+}
+
+func compareStores(t *testing.T, want, got *state.Store) {
+	t.Helper()
+	w, g := storeStates(want), storeStates(got)
+	keys := make([]string, 0, len(w))
+	for k := range w {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	if len(g) != len(w) {
+		t.Errorf("%d series, uninterrupted run %d", len(g), len(w))
+	}
+	for _, k := range keys {
+		// Printed, so that the NaN of an empty bucket equals itself; %v
+		// prints the shortest text that gives the float back.
+		if fmt.Sprintf("%+v", g[k]) != fmt.Sprintf("%+v", w[k]) {
+			t.Errorf("%s: state differs from the uninterrupted run's:\n got memo %+v incidents %+v\nwant memo %+v incidents %+v",
+				k, g[k].Memo, g[k].Incidents, w[k].Memo, w[k].Incidents)
+		}
+	}
+}
