@@ -125,8 +125,35 @@ func (e *engineFlags) register(fs *flag.FlagSet, bus bool) {
 	}
 }
 
+func (e *engineFlags) storeConfig() state.Config {
+	return state.Config{Partitions: e.partitions, MaxSeries: e.maxSeries, Lateness: e.lateness, IdleExpiry: e.idleExpiry}
+}
+
 func (e *engineFlags) store() (*state.Store, error) {
-	return state.New(state.Config{Partitions: e.partitions, MaxSeries: e.maxSeries, Lateness: e.lateness, IdleExpiry: e.idleExpiry})
+	return state.New(e.storeConfig())
+}
+
+// durableFlags set up durable mode.
+type durableFlags struct {
+	on          bool
+	name        string
+	snapDir     string
+	snapBucket  string
+	every       time.Duration
+	retain      time.Duration
+	retainBytes int64
+	eventBytes  int64
+}
+
+func (d *durableFlags) register(fs *flag.FlagSet) {
+	fs.BoolVar(&d.on, "durable", false, "ingest from a JetStream stream and keep state in snapshots, so that a restart loses nothing (see README, Operations)")
+	fs.StringVar(&d.name, "name", "headroom", "name of this sidecar's durable consumer and snapshot")
+	fs.StringVar(&d.snapDir, "snapshot-dir", "", "directory of snapshots; default <data>/snapshots with the embedded server, else the JetStream object store (--snapshot-bucket)")
+	fs.StringVar(&d.snapBucket, "snapshot-bucket", "headroom-snapshots", "JetStream object store of snapshots when --snapshot-dir is not given and --nats is")
+	fs.DurationVar(&d.every, "snapshot-every", time.Minute, "how often to snapshot the state in durable mode")
+	fs.DurationVar(&d.retain, "retain", 24*time.Hour, "how long the points and events streams keep messages, when headroom creates them")
+	fs.Int64Var(&d.retainBytes, "retain-bytes", 4<<30, "most bytes the points stream keeps, when headroom creates it")
+	fs.Int64Var(&d.eventBytes, "events-bytes", 1<<30, "most bytes the events stream keeps, when headroom creates it")
 }
 
 func (e *engineFlags) config(rules []forecast.Rule, horizon time.Duration, engine string) stream.Config {

@@ -2,14 +2,18 @@ package main
 
 import (
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"net"
 	"os"
+	"path/filepath"
 	"strconv"
 	"time"
 
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/forecast"
@@ -23,6 +27,7 @@ type sidecar struct {
 	listen   string // embedded server address when dial.URL is empty
 	dataDir  string
 	eng      engineFlags
+	dur      durableFlags
 	rules    []forecast.Rule
 	horizon  time.Duration
 	engine   string
@@ -32,6 +37,15 @@ type sidecar struct {
 }
 
 func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	sc, err := parseServe(args, stderr)
+	if err != nil {
+		return err
+	}
+	return sc.run(ctx)
+}
+
+// parseServe reads serve's flags into a sidecar.
+func parseServe(args []string, stderr io.Writer) (*sidecar, error) {
 	fs := flag.NewFlagSet("serve", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	var (
@@ -52,13 +66,14 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	fs.StringVar(&sc.dataDir, "data", "./headroom-data", "data directory of the embedded server (JetStream)")
 	rf.register(fs)
 	sc.eng.register(fs, true)
+	sc.dur.register(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(fs.Output(), "Usage: headroom serve [flags]\n\nRun the sidecar: ingest points, publish forecasts and breach events.\n\nFlags:")
 		fs.PrintDefaults()
 	}
 	rf.set = set
 	if err := parse(fs, args, set); err != nil {
-		return err
+		return nil, err
 	}
 	if sc.dial.Password == "" {
 		sc.dial.Password = os.Getenv("HEADROOM_NATS_PASSWORD")
@@ -68,13 +83,13 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	}
 	var err error
 	if sc.log, err = sc.eng.logger(stderr); err != nil {
-		return err
+		return nil, err
 	}
 	if sc.rules, err = rf.rules(); err != nil {
-		return err
+		return nil, err
 	}
 	sc.horizon, sc.engine = rf.horizon, rf.engine
-	return sc.run(ctx)
+	return &sc, nil
 }
 
 // run serves until ctx is done, then stops cleanly.
@@ -127,38 +142,79 @@ func (sc *sidecar) run(ctx context.Context) error {
 	}
 	defer nc.Close()
 
-	store, err := sc.eng.store()
-	if err != nil {
-		return err
+	var (
+		snaps stream.Snapshots
+		from  stream.Checkpoint
+		store *state.Store
+	)
+	if sc.dur.on {
+		if snaps, err = sc.snapshots(ctx, nc); err != nil {
+			return err
+		}
+		began := time.Now()
+		store, from = sc.restore(ctx, snaps)
+		if store != nil {
+			sc.log.Info().Str("from", snaps.String()).Int("series", store.Len()).Uint64("seq", from.Seq).
+				Dur("took", time.Since(began)).Msg("state restored")
+		}
+	}
+	if store == nil {
+		if store, err = sc.eng.store(); err != nil {
+			return err
+		}
 	}
 	pub := stream.NewPublisher(nc, subjects, format, sc.log)
+	if sc.dur.on {
+		if err := pub.UseJetStream(4096); err != nil {
+			return err
+		}
+	}
 	proc, err := stream.NewProcessor(store, pub, sc.eng.config(sc.rules, sc.horizon, sc.engine))
 	if err != nil {
 		return err
 	}
+	proc.Adopt(from.Rules)
 	for _, r := range proc.Rules() {
 		sc.log.Info().Str("rule", r.Name).Str("match", r.Match.String()).Float64("threshold", r.Threshold).
 			Str("direction", r.Direction.String()).Dur("horizon", r.Horizon).Msg("rule")
 	}
-	in := stream.Ingest{Conn: nc, Subject: subjects.Points(), Processor: proc, Subscribers: sc.eng.subscribers, Log: sc.log}
+	var ready func()
 	if sc.ready != nil {
 		// The client's own redaction hides a password, not a token.
 		url := stream.Redact(nc.ConnectedUrl())
 		if sc.embedded != nil {
 			url = sc.embedded.URL()
 		}
-		in.Ready = func() { sc.ready(url, proc) }
+		ready = func() { sc.ready(url, proc) }
 	}
 	ingestCtx, stopIngest := context.WithCancel(ctx)
 	defer stopIngest()
 	errc := make(chan error, 1)
-	go func() { errc <- in.Run(ingestCtx) }()
-	sc.tend(ctx, proc, pub, store)
+	var expired func() uint64
+	if sc.dur.on {
+		d := &stream.Durable{
+			Conn: nc, Processor: proc, Snapshots: snaps, From: from, Subjects: subjects,
+			Consumer: sc.dur.name, MaxAge: sc.dur.retain, MaxBytes: sc.dur.retainBytes,
+			Every: sc.dur.every, Publisher: pub, Ready: ready, Log: sc.log,
+			Events: &stream.EventsStream{MaxAge: sc.dur.retain, MaxBytes: sc.dur.eventBytes},
+		}
+		if sc.eng.idleExpiry > 0 {
+			d.Sweep = 5 * time.Second
+		}
+		expired = d.Expired
+		go func() { errc <- d.Run(ingestCtx) }()
+	} else {
+		in := stream.Ingest{Conn: nc, Subject: subjects.Points(), Processor: proc, Subscribers: sc.eng.subscribers, Ready: ready, Log: sc.log}
+		go func() { errc <- in.Run(ingestCtx) }()
+	}
+	sc.tend(ctx, proc, pub, store, expired, errc)
 	stopIngest()
 	err = <-errc
-	// Flush what was published so consumers get every record before we go.
-	fctx, fcancel := context.WithTimeout(context.Background(), 5*time.Second)
-	_ = nc.FlushWithContext(fctx)
+	// Publishes are settled so consumers get every record before we go.
+	fctx, fcancel := context.WithTimeout(context.Background(), 10*time.Second)
+	if serr := pub.Settle(fctx); serr != nil {
+		sc.log.Warn().Err(serr).Msg("publishes not settled at shutdown")
+	}
 	fcancel()
 	st := proc.Stats()
 	sc.log.Info().Uint64("messages", st.Messages).Uint64("points", st.Points).Uint64("rejected", st.Rejected).
@@ -166,20 +222,78 @@ func (sc *sidecar) run(ctx context.Context) error {
 	return err
 }
 
-// tend sweeps idle series out of the store every few seconds and logs the
-// counters once a minute, so an operator sees the rates without scraping
-// anything, until ctx is done.
-func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, store *state.Store) {
+// snapshots returns where durable mode keeps its snapshots: a directory
+// if one is given or the server is embedded, else a JetStream object
+// store.
+func (sc *sidecar) snapshots(ctx context.Context, nc *nats.Conn) (stream.Snapshots, error) {
+	dir := sc.dur.snapDir
+	if dir == "" && sc.dial.URL == "" {
+		dir = filepath.Join(sc.dataDir, "snapshots")
+	}
+	if dir != "" {
+		return stream.DirSnapshots{Dir: dir, Name: sc.dur.name}, nil
+	}
+	js, err := jetstream.New(nc)
+	if err != nil {
+		return nil, fmt.Errorf("jetstream: %w", err)
+	}
+	cctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	return stream.OpenBucketSnapshots(cctx, js, sc.dur.snapBucket, sc.dur.name)
+}
+
+// restore loads the newest snapshot. Without one it returns a nil store.
+// A snapshot that cannot be used is reported and set aside in favour of
+// rebuilding the state from what the points stream retains: a sidecar
+// that starts is worth more than one that refuses to.
+func (sc *sidecar) restore(ctx context.Context, snaps stream.Snapshots) (*state.Store, stream.Checkpoint) {
+	r, err := snaps.Load(ctx)
+	if err != nil {
+		if errors.Is(err, stream.ErrNoSnapshot) {
+			sc.log.Info().Str("from", snaps.String()).Msg("no snapshot yet; starting from the start of the points stream")
+		} else {
+			sc.log.Error().Err(err).Msg("snapshot unreadable; rebuilding the state from the points stream")
+		}
+		return nil, stream.Checkpoint{}
+	}
+	defer r.Close()
+	store, cp, err := stream.ReadSnapshot(r, sc.eng.storeConfig())
+	if err != nil {
+		sc.log.Error().Err(err).Msg("snapshot unusable; rebuilding the state from the points stream")
+		return nil, stream.Checkpoint{}
+	}
+	return store, cp
+}
+
+// tend sweeps idle series out of the store every few seconds, unless
+// swept is set (durable ingest sweeps between messages and counts them
+// there), and logs the counters once a minute, so an operator sees the
+// rates without scraping anything, until ctx is done or ingest fails, in
+// which case its error is put back on errc.
+func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, store *state.Store, swept func() uint64, errc chan error) {
 	sweep := time.NewTicker(5 * time.Second)
 	defer sweep.Stop()
 	report := time.NewTicker(time.Minute)
 	defer report.Stop()
 	prev, last, failed, expired := proc.Stats(), time.Now(), pub.Failed(), 0
+	var sweptBefore uint64
+	if swept != nil {
+		sweptBefore = swept()
+	}
 	for {
 		select {
 		case <-ctx.Done():
 			return
+		case err := <-errc:
+			errc <- err
+			return
 		case now := <-sweep.C:
+			if swept != nil {
+				n := swept()
+				expired += int(n - sweptBefore)
+				sweptBefore = n
+				continue
+			}
 			// The wall clock caps the reference, so one point stamped far
 			// ahead cannot make every other series look idle.
 			expired += store.Expire(now.UnixMilli())
