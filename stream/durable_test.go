@@ -8,8 +8,10 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
+	"net/url"
 	"reflect"
 	"sort"
+	"strconv"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -406,6 +408,64 @@ func compareStores(t *testing.T, want, got *state.Store) {
 		if fmt.Sprintf("%+v", g[k]) != fmt.Sprintf("%+v", w[k]) {
 			t.Errorf("%s: state differs from the uninterrupted run's:\n got memo %+v incidents %+v\nwant memo %+v incidents %+v",
 				k, g[k].Memo, g[k].Incidents, w[k].Memo, w[k].Incidents)
+		}
+	}
+}
+
+// TestDurableServerRestart restarts the NATS server, with its JetStream
+// store, under a durable sidecar in the middle of the input: the sidecar
+// reconnects, its consumer goes on, and it ends in the state of an
+// uninterrupted run.
+func TestDurableServerRestart(t *testing.T) {
+	msgs := durableInput()
+	refStore, ref := reference(t, msgs)
+	dataDir := t.TempDir()
+	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: -1, DataDir: dataDir, Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	u, err := url.Parse(emb.URL())
+	if err != nil {
+		t.Fatal(err)
+	}
+	port, _ := strconv.Atoi(u.Port())
+	run := startDurable(t, emb.URL(), stream.DirSnapshots{Dir: t.TempDir()})
+	publishSeq := func(addr string, msgs [][]byte) {
+		t.Helper()
+		nc, err := nats.Connect(addr)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer nc.Close()
+		js, err := jetstream.New(nc)
+		if err != nil {
+			t.Fatal(err)
+		}
+		publishJS(t, js, msgs)
+	}
+	half := len(msgs) / 2
+	publishSeq(emb.URL(), msgs[:half])
+	if !waitFor(t, 30*time.Second, func() bool { return run.d.Applied() == uint64(half) }) {
+		t.Fatalf("applied %d of %d before the restart", run.d.Applied(), half)
+	}
+	emb.Shutdown()
+	emb, err = stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: port, DataDir: dataDir, Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer emb.Shutdown()
+	publishSeq(emb.URL(), msgs[half:])
+	if !waitFor(t, 30*time.Second, func() bool { return run.d.Applied() == uint64(len(msgs)) }) {
+		t.Fatalf("applied %d of %d after the restart", run.d.Applied(), len(msgs))
+	}
+	run.cancel()
+	if err := <-run.done; err != nil {
+		t.Fatal(err)
+	}
+	compareStores(t, refStore, run.d.Processor.Store())
+	for k, want := range ref.forecasts {
+		if got := run.rec.forecasts[k]; !reflect.DeepEqual(got, want) {
+			t.Errorf("%s: newest forecast differs", k)
 		}
 	}
 }
