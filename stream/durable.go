@@ -52,8 +52,8 @@ type Durable struct {
 	Ready     func() // called once consuming
 	Log       zerolog.Logger
 
-	expired, snapshots atomic.Uint64
-	last               atomic.Uint64
+	expired, snapshots, failed atomic.Uint64
+	last                       atomic.Uint64
 }
 
 // EventsStream configures the stream that keeps published records in
@@ -78,13 +78,17 @@ func (d *Durable) Expired() uint64 { return d.expired.Load() }
 // Snapshotted counts snapshots written.
 func (d *Durable) Snapshotted() uint64 { return d.snapshots.Load() }
 
+// SnapshotsFailed counts snapshots that could not be written.
+func (d *Durable) SnapshotsFailed() uint64 { return d.failed.Load() }
+
 // Applied returns the last stream sequence applied.
 func (d *Durable) Applied() uint64 { return d.last.Load() }
 
 // Run consumes until ctx is done, then stops fetching, settles the
-// publisher and writes a final snapshot. It returns early on an error
-// that makes going on pointless, such as a snapshot that cannot be
-// written or a closed connection.
+// publisher and writes a final snapshot, whose error it returns. A
+// periodic snapshot that fails is logged, counted and tried again at the
+// next cadence. Run returns early on an error that makes going on
+// pointless, such as a closed connection.
 func (d *Durable) Run(ctx context.Context) error {
 	if d.Conn == nil || d.Processor == nil || d.Snapshots == nil {
 		return errors.New("stream: durable ingest needs a connection, a processor and snapshots")
@@ -172,10 +176,16 @@ func (d *Durable) Run(ctx context.Context) error {
 		}
 		if dirty && now.After(nextSnap) && ctx.Err() == nil {
 			// A snapshot begun is finished, even if ctx ends meanwhile.
+			// One that fails (a full disk, an unreachable object store) is
+			// tried again at the next cadence: ingest goes on meanwhile,
+			// and the stream still holds what a restart would replay.
 			if err := d.snapshot(context.WithoutCancel(ctx), &cp); err != nil {
-				return err
+				d.failed.Add(1)
+				d.Log.Error().Err(err).Uint64("failed", d.failed.Load()).Msg("snapshot failed; retrying at the next cadence")
+			} else {
+				dirty = false
 			}
-			dirty, nextSnap = false, time.Now().Add(every)
+			nextSnap = time.Now().Add(every)
 		}
 	}
 	it.Stop()

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"sync"
 	"sync/atomic"
+	"time"
 
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
@@ -107,6 +108,12 @@ func (p *Publisher) asyncFailed(_ jetstream.JetStream, m *nats.Msg, err error) {
 // connection.
 func (p *Publisher) Settle(ctx context.Context) error {
 	if p.js == nil {
+		if _, ok := ctx.Deadline(); !ok {
+			// The connection's flush insists on a deadline.
+			var cancel context.CancelFunc
+			ctx, cancel = context.WithTimeout(ctx, 10*time.Second)
+			defer cancel()
+		}
 		if err := p.nc.FlushWithContext(ctx); err != nil {
 			return fmt.Errorf("stream: flush: %w", err)
 		}

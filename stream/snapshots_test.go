@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"strings"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -330,4 +331,42 @@ func mustStore(t *testing.T) *state.Store {
 		t.Fatal(err)
 	}
 	return s
+}
+
+// failing is a Snapshots whose first saves fail.
+type failing struct {
+	stream.Snapshots
+	left atomic.Int64
+}
+
+func (f *failing) Save(ctx context.Context, write func(io.Writer) error) error {
+	if f.left.Add(-1) >= 0 {
+		return errors.New("disk full")
+	}
+	return f.Snapshots.Save(ctx, write)
+}
+
+// TestSnapshotFailure keeps ingesting while snapshots fail, counts the
+// failures, and writes one once saving works again.
+func TestSnapshotFailure(t *testing.T) {
+	emb, _, js := jsServer(t)
+	snaps := &failing{Snapshots: stream.DirSnapshots{Dir: t.TempDir()}}
+	snaps.left.Store(3)
+	run := startDurable(t, emb.URL(), snaps)
+	msgs := durableInput()
+	publishJS(t, js, msgs[:100])
+	if !waitFor(t, 30*time.Second, func() bool { return run.d.Applied() == 100 }) {
+		t.Fatalf("applied %d of 100 while snapshots fail", run.d.Applied())
+	}
+	publishJS(t, js, msgs[100:120])
+	if !waitFor(t, 30*time.Second, func() bool { return run.d.Snapshotted() > 0 && run.d.Applied() == 120 }) {
+		t.Fatalf("applied %d, %d snapshots, %d failed", run.d.Applied(), run.d.Snapshotted(), run.d.SnapshotsFailed())
+	}
+	if run.d.SnapshotsFailed() != 3 {
+		t.Errorf("%d snapshots failed, want 3", run.d.SnapshotsFailed())
+	}
+	run.cancel()
+	if err := <-run.done; err != nil {
+		t.Fatal(err)
+	}
 }

@@ -190,7 +190,7 @@ func (sc *sidecar) run(ctx context.Context) error {
 	ingestCtx, stopIngest := context.WithCancel(ctx)
 	defer stopIngest()
 	errc := make(chan error, 1)
-	var expired func() uint64
+	var dur *stream.Durable
 	if sc.dur.on {
 		d := &stream.Durable{
 			Conn: nc, Processor: proc, Snapshots: snaps, From: from, Subjects: subjects,
@@ -201,13 +201,18 @@ func (sc *sidecar) run(ctx context.Context) error {
 		if sc.eng.idleExpiry > 0 {
 			d.Sweep = 5 * time.Second
 		}
-		expired = d.Expired
+		if sc.eng.subscribers > 1 {
+			// A snapshot must be the state after exactly the messages up
+			// to its sequence, so one goroutine applies them in order.
+			sc.log.Warn().Int("subscribers", sc.eng.subscribers).Msg("--subscribers is ignored with --durable: one consumer applies the stream in order")
+		}
+		dur = d
 		go func() { errc <- d.Run(ingestCtx) }()
 	} else {
 		in := stream.Ingest{Conn: nc, Subject: subjects.Points(), Processor: proc, Subscribers: sc.eng.subscribers, Ready: ready, Log: sc.log}
 		go func() { errc <- in.Run(ingestCtx) }()
 	}
-	sc.tend(ctx, proc, pub, store, expired, errc)
+	sc.tend(ctx, proc, pub, store, dur, errc)
 	stopIngest()
 	err = <-errc
 	// Publishes are settled so consumers get every record before we go.
@@ -265,20 +270,20 @@ func (sc *sidecar) restore(ctx context.Context, snaps stream.Snapshots) (*state.
 	return store, cp
 }
 
-// tend sweeps idle series out of the store every few seconds, unless
-// swept is set (durable ingest sweeps between messages and counts them
-// there), and logs the counters once a minute, so an operator sees the
-// rates without scraping anything, until ctx is done or ingest fails, in
-// which case its error is put back on errc.
-func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, store *state.Store, swept func() uint64, errc chan error) {
+// tend sweeps idle series out of the store every few seconds, unless dur
+// is set (durable ingest sweeps between messages and counts them there),
+// and logs the counters once a minute, so an operator sees the rates
+// without scraping anything, until ctx is done or ingest fails, in which
+// case its error is put back on errc.
+func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream.Publisher, store *state.Store, dur *stream.Durable, errc chan error) {
 	sweep := time.NewTicker(5 * time.Second)
 	defer sweep.Stop()
 	report := time.NewTicker(time.Minute)
 	defer report.Stop()
 	prev, last, failed, expired := proc.Stats(), time.Now(), pub.Failed(), 0
-	var sweptBefore uint64
-	if swept != nil {
-		sweptBefore = swept()
+	var sweptBefore, snaps, snapsFailed uint64
+	if dur != nil {
+		sweptBefore, snaps, snapsFailed = dur.Expired(), dur.Snapshotted(), dur.SnapshotsFailed()
 	}
 	for {
 		select {
@@ -288,8 +293,8 @@ func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream
 			errc <- err
 			return
 		case now := <-sweep.C:
-			if swept != nil {
-				n := swept()
+			if dur != nil {
+				n := dur.Expired()
 				expired += int(n - sweptBefore)
 				sweptBefore = n
 				continue
@@ -300,10 +305,16 @@ func (sc *sidecar) tend(ctx context.Context, proc *stream.Processor, pub *stream
 		case now := <-report.C:
 			st := proc.Stats()
 			secs := now.Sub(last).Seconds()
-			sc.log.Info().Float64("points_per_s", float64(st.Points-prev.Points)/secs).
+			ev := sc.log.Info().Float64("points_per_s", float64(st.Points-prev.Points)/secs).
 				Uint64("rejected", st.Rejected-prev.Rejected).Uint64("forecasts", st.Forecasts-prev.Forecasts).
 				Uint64("breaches", st.Breaches-prev.Breaches).Uint64("publish_failed", pub.Failed()-failed).
-				Int("expired", expired).Int("series", store.Len()).Msg("last minute")
+				Int("expired", expired).Int("series", store.Len())
+			if dur != nil {
+				ev = ev.Uint64("applied_seq", dur.Applied()).Uint64("snapshots", dur.Snapshotted()-snaps).
+					Uint64("snapshots_failed", dur.SnapshotsFailed()-snapsFailed)
+				snaps, snapsFailed = dur.Snapshotted(), dur.SnapshotsFailed()
+			}
+			ev.Msg("last minute")
 			prev, last, failed, expired = st, now, pub.Failed(), 0
 		}
 	}
