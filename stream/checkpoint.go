@@ -2,10 +2,14 @@ package stream
 
 import (
 	"bufio"
+	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"time"
+
+	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/forecast"
 	"github.com/headroom-dev/headroom/state"
@@ -119,4 +123,46 @@ func sameNames(names []string, rules []forecast.Rule) bool {
 		}
 	}
 	return true
+}
+
+// LoadState restores the newest usable snapshot of snaps into a store
+// configured by cfg: the newest one, else the one before it. A snapshot
+// that cannot be read or used (damaged, or written with another bucket
+// layout) is logged and passed over. Without a usable one it returns a nil
+// store and a zero checkpoint, and the caller starts empty, rebuilding the
+// state from what the points stream retains: a sidecar that starts is
+// worth more than one that refuses to.
+func LoadState(ctx context.Context, snaps Snapshots, cfg state.Config, log zerolog.Logger) (*state.Store, Checkpoint) {
+	found := false
+	for _, previous := range []bool{false, true} {
+		which := "newest"
+		if previous {
+			which = "previous"
+		}
+		r, err := snaps.Load(ctx, previous)
+		if errors.Is(err, ErrNoSnapshot) {
+			continue
+		}
+		found = true
+		if err != nil {
+			log.Error().Err(err).Str("snapshot", which).Msg("snapshot unreadable")
+			continue
+		}
+		store, cp, err := ReadSnapshot(r, cfg)
+		r.Close()
+		if err != nil {
+			log.Error().Err(err).Str("snapshot", which).Msg("snapshot unusable")
+			continue
+		}
+		if previous {
+			log.Warn().Uint64("seq", cp.Seq).Msg("restored the previous snapshot; the newest was not usable")
+		}
+		return store, cp
+	}
+	if found {
+		log.Error().Str("from", snaps.String()).Msg("no usable snapshot; rebuilding the state from the points stream")
+	} else {
+		log.Info().Str("from", snaps.String()).Msg("no snapshot yet; starting from the start of the points stream")
+	}
+	return nil, Checkpoint{}
 }

@@ -3,7 +3,6 @@ package stream_test
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -182,20 +181,11 @@ func startDurable(t *testing.T, url string, snaps stream.Snapshots) *durableRun 
 		t.Fatal(err)
 	}
 	t.Cleanup(nc.Close)
-	var (
-		store *state.Store
-		cp    stream.Checkpoint
-	)
-	if r, err := snaps.Load(ctx); err == nil {
-		store, cp, err = stream.ReadSnapshot(r, durableStore)
-		r.Close()
-		if err != nil {
+	store, cp := stream.LoadState(ctx, snaps, durableStore, zerolog.Nop())
+	if store == nil {
+		if store, err = state.New(durableStore); err != nil {
 			t.Fatal(err)
 		}
-	} else if !errors.Is(err, stream.ErrNoSnapshot) {
-		t.Fatal(err)
-	} else if store, err = state.New(durableStore); err != nil {
-		t.Fatal(err)
 	}
 	pub := stream.NewPublisher(nc, stream.Subjects{}, stream.JSON, zerolog.Nop())
 	if err := pub.UseJetStream(256); err != nil {

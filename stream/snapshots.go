@@ -7,19 +7,21 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"time"
 
 	"github.com/nats-io/nats.go/jetstream"
 )
 
-// Snapshots keeps the newest snapshot of a durable sidecar's state. Save
-// replaces it only once the new one is complete, so a crash while saving
-// leaves the previous one in place.
+// Snapshots keeps the two newest snapshots of a durable sidecar's state.
+// Save replaces the older only once the new one is complete, so a crash
+// while saving leaves both in place, and a newest snapshot that turns out
+// damaged can be passed over for the one before it.
 type Snapshots interface {
 	// Save stores what write writes as the newest snapshot.
 	Save(ctx context.Context, write func(io.Writer) error) error
-	// Load opens the newest snapshot; it returns an error wrapping
-	// ErrNoSnapshot when there is none.
-	Load(ctx context.Context) (io.ReadCloser, error)
+	// Load opens the newest snapshot, or with previous set the one before
+	// it; it returns an error wrapping ErrNoSnapshot when there is none.
+	Load(ctx context.Context, previous bool) (io.ReadCloser, error)
 	// String names where snapshots go, for logs.
 	String() string
 }
@@ -27,9 +29,9 @@ type Snapshots interface {
 // ErrNoSnapshot reports that no snapshot has been saved yet.
 var ErrNoSnapshot = errors.New("no snapshot")
 
-// DirSnapshots keeps the snapshot in a local file, Dir/Name.snapshot.
-// It suits a sidecar whose bus is its own embedded server, on the same
-// disk.
+// DirSnapshots keeps the newest snapshot in a local file,
+// Dir/Name.snapshot, and the one before it in Dir/Name.snapshot.prev. It
+// suits a sidecar whose bus is its own embedded server, on the same disk.
 type DirSnapshots struct {
 	Dir  string
 	Name string // default "headroom"
@@ -45,9 +47,11 @@ func (d DirSnapshots) path() string {
 
 func (d DirSnapshots) String() string { return d.path() }
 
-// Save writes a temporary file beside the snapshot, syncs it and renames
-// it over the snapshot, then syncs the directory, so that the snapshot is
-// either the old one or the new one, whole, after a crash.
+// Save writes a temporary file beside the snapshot and syncs it, renames
+// the snapshot to the previous one and the temporary file to the
+// snapshot, then syncs the directory. After a crash at any point, each
+// file is whole: between the renames there is a previous snapshot and no
+// newest, which Load reports as none so that the caller falls back.
 func (d DirSnapshots) Save(ctx context.Context, write func(io.Writer) error) error {
 	if err := os.MkdirAll(d.Dir, 0o750); err != nil {
 		return fmt.Errorf("stream: snapshot directory: %w", err)
@@ -76,6 +80,9 @@ func (d DirSnapshots) Save(ctx context.Context, write func(io.Writer) error) err
 	if err := f.Close(); err != nil {
 		return fmt.Errorf("stream: snapshot: %w", err)
 	}
+	if err := os.Rename(d.path(), d.path()+".prev"); err != nil && !errors.Is(err, os.ErrNotExist) {
+		return fmt.Errorf("stream: snapshot: %w", err)
+	}
 	if err := os.Rename(tmp, d.path()); err != nil {
 		return fmt.Errorf("stream: snapshot: %w", err)
 	}
@@ -87,11 +94,15 @@ func (d DirSnapshots) Save(ctx context.Context, write func(io.Writer) error) err
 	return nil
 }
 
-// Load opens the snapshot file.
-func (d DirSnapshots) Load(ctx context.Context) (io.ReadCloser, error) {
-	f, err := os.Open(d.path())
+// Load opens the snapshot file or the previous one.
+func (d DirSnapshots) Load(ctx context.Context, previous bool) (io.ReadCloser, error) {
+	path := d.path()
+	if previous {
+		path += ".prev"
+	}
+	f, err := os.Open(path)
 	if errors.Is(err, os.ErrNotExist) {
-		return nil, fmt.Errorf("stream: %s: %w", d.path(), ErrNoSnapshot)
+		return nil, fmt.Errorf("stream: %s: %w", path, ErrNoSnapshot)
 	}
 	if err != nil {
 		return nil, fmt.Errorf("stream: snapshot: %w", err)
@@ -99,9 +110,11 @@ func (d DirSnapshots) Load(ctx context.Context) (io.ReadCloser, error) {
 	return f, nil
 }
 
-// BucketSnapshots keeps the snapshot as object Name of a JetStream object
-// store, so that a sidecar can restart on another node. A new version of
-// an object replaces the old one only when it is complete.
+// BucketSnapshots keeps the snapshots as objects Name.0 and Name.1 of a
+// JetStream object store, so that a sidecar can restart on another node.
+// Save writes over the older of the two, and a new version of an object
+// replaces the old one only when it is complete; Load tells them apart by
+// modification time.
 type BucketSnapshots struct {
 	Store  jetstream.ObjectStore
 	Bucket string // the store's bucket name, for logs
@@ -132,13 +145,44 @@ func (b BucketSnapshots) name() string {
 }
 
 func (b BucketSnapshots) String() string {
-	return "object " + b.name() + " of bucket " + b.Bucket
+	return "objects " + b.name() + ".0 and .1 of bucket " + b.Bucket
 }
 
-// Save streams the snapshot into the object store through a pipe.
+// slots returns the object names of the newest and the previous
+// snapshot; a name is empty when that snapshot does not exist.
+func (b BucketSnapshots) slots(ctx context.Context) (newest, previous string, err error) {
+	var at [2]time.Time
+	var names [2]string
+	for i := range names {
+		name := fmt.Sprintf("%s.%d", b.name(), i)
+		info, err := b.Store.GetInfo(ctx, name)
+		if errors.Is(err, jetstream.ErrObjectNotFound) {
+			continue
+		}
+		if err != nil {
+			return "", "", fmt.Errorf("stream: snapshot %s: %w", name, err)
+		}
+		names[i], at[i] = name, info.ModTime
+	}
+	if names[1] != "" && (names[0] == "" || at[1].After(at[0])) {
+		return names[1], names[0], nil
+	}
+	return names[0], names[1], nil
+}
+
+// Save streams the snapshot into the object store through a pipe, over
+// the older snapshot.
 func (b BucketSnapshots) Save(ctx context.Context, write func(io.Writer) error) error {
 	if b.Store == nil {
 		return errors.New("stream: snapshot bucket not set")
+	}
+	newest, _, err := b.slots(ctx)
+	if err != nil {
+		return err
+	}
+	target := b.name() + ".0"
+	if newest == target {
+		target = b.name() + ".1"
 	}
 	pr, pw := io.Pipe()
 	done := make(chan error, 1)
@@ -147,7 +191,7 @@ func (b BucketSnapshots) Save(ctx context.Context, write func(io.Writer) error) 
 		pw.CloseWithError(err) // nil closes cleanly
 		done <- err
 	}()
-	_, err := b.Store.Put(ctx, jetstream.ObjectMeta{Name: b.name()}, pr)
+	_, err = b.Store.Put(ctx, jetstream.ObjectMeta{Name: target}, pr)
 	// The writer sees a closed pipe if Put gave up early.
 	pr.CloseWithError(errors.New("stream: snapshot upload stopped"))
 	werr := <-done
@@ -160,12 +204,23 @@ func (b BucketSnapshots) Save(ctx context.Context, write func(io.Writer) error) 
 	return nil
 }
 
-// Load opens the snapshot object.
-func (b BucketSnapshots) Load(ctx context.Context) (io.ReadCloser, error) {
+// Load opens the newest snapshot object or the previous one.
+func (b BucketSnapshots) Load(ctx context.Context, previous bool) (io.ReadCloser, error) {
 	if b.Store == nil {
 		return nil, errors.New("stream: snapshot bucket not set")
 	}
-	r, err := b.Store.Get(ctx, b.name())
+	newest, prev, err := b.slots(ctx)
+	if err != nil {
+		return nil, err
+	}
+	name := newest
+	if previous {
+		name = prev
+	}
+	if name == "" {
+		return nil, fmt.Errorf("stream: %s: %w", b, ErrNoSnapshot)
+	}
+	r, err := b.Store.Get(ctx, name)
 	if errors.Is(err, jetstream.ErrObjectNotFound) {
 		return nil, fmt.Errorf("stream: %s: %w", b, ErrNoSnapshot)
 	}

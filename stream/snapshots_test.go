@@ -6,6 +6,7 @@ import (
 	"errors"
 	"io"
 	"os"
+	"path/filepath"
 	"strings"
 	"sync/atomic"
 	"testing"
@@ -60,8 +61,10 @@ func TestSnapshots(t *testing.T) {
 	} {
 		t.Run(tt.name, func(t *testing.T) {
 			ctx := context.Background()
-			if _, err := tt.snaps.Load(ctx); !errors.Is(err, stream.ErrNoSnapshot) {
-				t.Fatalf("load before any save: %v, want ErrNoSnapshot", err)
+			for _, prev := range []bool{false, true} {
+				if _, err := tt.snaps.Load(ctx, prev); !errors.Is(err, stream.ErrNoSnapshot) {
+					t.Fatalf("load (previous %v) before any save: %v, want ErrNoSnapshot", prev, err)
+				}
 			}
 			// Large enough to take many object chunks.
 			big := bytes.Repeat([]byte("0123456789abcdef"), 1<<16)
@@ -69,8 +72,14 @@ func TestSnapshots(t *testing.T) {
 				if err := tt.snaps.Save(ctx, func(w io.Writer) error { _, err := w.Write(want); return err }); err != nil {
 					t.Fatalf("save %d: %v", i, err)
 				}
-				if got := load(t, tt.two); !bytes.Equal(got, want) {
+				if got := load(t, tt.two, false); !bytes.Equal(got, want) {
 					t.Fatalf("save %d: loaded %d bytes, want %d", i, len(got), len(want))
+				}
+				if i > 0 {
+					before := [][]byte{[]byte("first"), big}[i-1]
+					if got := load(t, tt.two, true); !bytes.Equal(got, before) {
+						t.Fatalf("save %d: previous is %d bytes, want %d", i, len(got), len(before))
+					}
 				}
 			}
 			// A save whose writer fails leaves the previous snapshot.
@@ -82,8 +91,11 @@ func TestSnapshots(t *testing.T) {
 			if !errors.Is(err, boom) {
 				t.Fatalf("failed save returned %v", err)
 			}
-			if got := load(t, tt.two); string(got) != "third" {
+			if got := load(t, tt.two, false); string(got) != "third" {
 				t.Fatalf("after a failed save: %q", got)
+			}
+			if got := load(t, tt.two, true); !bytes.Equal(got, big) {
+				t.Fatalf("after a failed save the previous is %d bytes", len(got))
 			}
 			if !strings.Contains(tt.snaps.String(), "node-a") {
 				t.Errorf("String() = %q does not name the snapshot", tt.snaps.String())
@@ -95,14 +107,14 @@ func TestSnapshots(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(entries) != 1 || entries[0].Name() != "node-a.snapshot" {
+	if len(entries) != 2 || entries[0].Name() != "node-a.snapshot" || entries[1].Name() != "node-a.snapshot.prev" {
 		t.Errorf("snapshot directory holds %v", entries)
 	}
 }
 
-func load(t *testing.T, s stream.Snapshots) []byte {
+func load(t *testing.T, s stream.Snapshots, previous bool) []byte {
 	t.Helper()
-	r, err := s.Load(context.Background())
+	r, err := s.Load(context.Background(), previous)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -368,5 +380,61 @@ func TestSnapshotFailure(t *testing.T) {
 	run.cancel()
 	if err := <-run.done; err != nil {
 		t.Fatal(err)
+	}
+}
+
+// TestLoadState restores the newest usable snapshot: the newest, else the
+// previous one, else none.
+func TestLoadState(t *testing.T) {
+	store := mustStore(t)
+	w, _ := newDurableWorker(t, store, durableConfig(t))
+	for _, m := range durableInput()[:20] {
+		w.Handle("headroom.points.fleet", m)
+	}
+	dir := t.TempDir()
+	snaps := stream.DirSnapshots{Dir: dir}
+	ctx := context.Background()
+	if s, cp := stream.LoadState(ctx, snaps, durableStore, zerolog.Nop()); s != nil || cp.Seq != 0 {
+		t.Fatalf("no snapshot: restored %v at %d", s != nil, cp.Seq)
+	}
+	for _, seq := range []uint64{10, 20} {
+		if err := snaps.Save(ctx, func(w io.Writer) error { return stream.WriteSnapshot(w, store, stream.Checkpoint{Seq: seq}) }); err != nil {
+			t.Fatal(err)
+		}
+	}
+	damage := func(path string) {
+		t.Helper()
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b[len(b)/2] ^= 0x40
+		if err := os.WriteFile(path, b, 0o600); err != nil {
+			t.Fatal(err)
+		}
+	}
+	tests := []struct {
+		name    string
+		before  func()
+		cfg     state.Config
+		wantSeq uint64 // 0: nothing restored
+	}{
+		{"newest", func() {}, durableStore, 20},
+		{"other layout", func() {}, state.Config{Layout: []state.Level{{Width: time.Minute, Count: 60}, {Width: time.Hour, Count: 48}}}, 0},
+		{"newest damaged", func() { damage(filepath.Join(dir, "headroom.snapshot")) }, durableStore, 10},
+		{"newest gone, as after a crash between the renames", func() { _ = os.Remove(filepath.Join(dir, "headroom.snapshot")) }, durableStore, 10},
+		{"both damaged", func() { damage(filepath.Join(dir, "headroom.snapshot.prev")) }, durableStore, 0},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			tt.before()
+			s, cp := stream.LoadState(ctx, snaps, tt.cfg, zerolog.Nop())
+			if (s != nil) != (tt.wantSeq != 0) || cp.Seq != tt.wantSeq {
+				t.Fatalf("restored %v at sequence %d, want sequence %d", s != nil, cp.Seq, tt.wantSeq)
+			}
+			if s != nil {
+				compareStores(t, store, s)
+			}
+		})
 	}
 }

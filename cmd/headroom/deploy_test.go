@@ -142,7 +142,7 @@ func TestDeployServerConfig(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	restored, cp := sc.restore(context.Background(), snaps)
+	restored, cp := stream.LoadState(context.Background(), snaps, sc.eng.storeConfig(), zerolog.Nop())
 	if restored == nil || restored.Len() != 1 || cp.Seq != 120 {
 		t.Errorf("restored %v at sequence %d from %s, want one series at 120", restored != nil, cp.Seq, snaps)
 	}

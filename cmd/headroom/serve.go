@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -152,7 +151,7 @@ func (sc *sidecar) run(ctx context.Context) error {
 			return err
 		}
 		began := time.Now()
-		store, from = sc.restore(ctx, snaps)
+		store, from = stream.LoadState(ctx, snaps, sc.eng.storeConfig(), sc.log)
 		if store != nil {
 			sc.log.Info().Str("from", snaps.String()).Int("series", store.Len()).Uint64("seq", from.Seq).
 				Dur("took", time.Since(began)).Msg("state restored")
@@ -245,29 +244,6 @@ func (sc *sidecar) snapshots(ctx context.Context, nc *nats.Conn) (stream.Snapsho
 	cctx, cancel := context.WithTimeout(ctx, 10*time.Second)
 	defer cancel()
 	return stream.OpenBucketSnapshots(cctx, js, sc.dur.snapBucket, sc.dur.name)
-}
-
-// restore loads the newest snapshot. Without one it returns a nil store.
-// A snapshot that cannot be used is reported and set aside in favour of
-// rebuilding the state from what the points stream retains: a sidecar
-// that starts is worth more than one that refuses to.
-func (sc *sidecar) restore(ctx context.Context, snaps stream.Snapshots) (*state.Store, stream.Checkpoint) {
-	r, err := snaps.Load(ctx)
-	if err != nil {
-		if errors.Is(err, stream.ErrNoSnapshot) {
-			sc.log.Info().Str("from", snaps.String()).Msg("no snapshot yet; starting from the start of the points stream")
-		} else {
-			sc.log.Error().Err(err).Msg("snapshot unreadable; rebuilding the state from the points stream")
-		}
-		return nil, stream.Checkpoint{}
-	}
-	defer r.Close()
-	store, cp, err := stream.ReadSnapshot(r, sc.eng.storeConfig())
-	if err != nil {
-		sc.log.Error().Err(err).Msg("snapshot unusable; rebuilding the state from the points stream")
-		return nil, stream.Checkpoint{}
-	}
-	return store, cp
 }
 
 // tend sweeps idle series out of the store every few seconds, unless dur
