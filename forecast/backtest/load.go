@@ -18,8 +18,9 @@ import (
 // ReadRows calls fn with every row of a CSV with a header naming the
 // columns timestamp and value (other columns are ignored), in file order.
 // Timestamps may be 'YYYY-MM-DD HH:MM:SS' (UTC), RFC3339 or unix seconds
-// (see ParseTime). A malformed row is an error naming its line; values
-// are passed on as read, NaN and infinities included, for fn to judge.
+// (see ParseTime). fn gets the line the row starts on; a malformed row
+// is an error naming its line. Values are passed on as read, NaN and
+// infinities included, for fn to judge.
 func ReadRows(r io.Reader, fn func(line int, ts int64, v float64) error) error {
 	cr := csv.NewReader(r)
 	cr.FieldsPerRecord = -1
@@ -40,14 +41,22 @@ func ReadRows(r io.Reader, fn func(line int, ts int64, v float64) error) error {
 	if ti < 0 || vi < 0 {
 		return errors.New("header must name the columns timestamp and value")
 	}
-	for line := 2; ; line++ {
+	// Lines are the file's, as the reader counts them: blank lines and
+	// quoted line breaks make them differ from a count of rows.
+	line, _ := cr.FieldPos(0)
+	for {
 		rec, err := cr.Read()
 		if errors.Is(err, io.EOF) {
 			return nil
 		}
 		if err != nil {
+			line++
+			if pe := (*csv.ParseError)(nil); errors.As(err, &pe) {
+				line = pe.StartLine
+			}
 			return fmt.Errorf("line %d: %w", line, err)
 		}
+		line, _ = cr.FieldPos(0)
 		if len(rec) <= max(ti, vi) {
 			return fmt.Errorf("line %d: too few columns", line)
 		}
@@ -153,7 +162,8 @@ func ParseTime(s string) (int64, error) {
 }
 
 // nativeStep is the median positive spacing of ts, a minute if there is
-// none: robust to gaps, duplicates and the odd step back.
+// none: robust to gaps, duplicates and the odd step back. A spacing of
+// more than the longest Duration (292 years) counts as the longest.
 func nativeStep(ts []int64) time.Duration {
 	d := make([]int64, 0, len(ts))
 	for i := 1; i < len(ts); i++ {
@@ -165,5 +175,5 @@ func nativeStep(ts []int64) time.Duration {
 		return time.Minute
 	}
 	slices.Sort(d)
-	return time.Duration(d[len(d)/2]) * time.Millisecond
+	return time.Duration(min(d[len(d)/2], math.MaxInt64/int64(time.Millisecond))) * time.Millisecond
 }

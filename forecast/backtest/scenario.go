@@ -17,7 +17,8 @@ import (
 type Suite struct {
 	Description string `json:"description"`
 	// Days of history before the first scored origin, and days scored
-	// after it: each drawn per series as a whole number in the range.
+	// after it: each drawn per series as a whole number in the range, at
+	// most 366 (a year).
 	HistoryDays [2]int   `json:"history_days"`
 	EvalDays    [2]int   `json:"eval_days"`
 	Families    []Family `json:"families"`
@@ -37,6 +38,11 @@ type Family struct {
 	Params      map[string][2]float64 `json:"params"`
 }
 
+// maxSuiteDays bounds the days of a suite: a year of history and a year
+// scored is more than a backtest of one-minute points needs, and keeps
+// the minutes of a series, (history + eval) × 1440, from overflowing.
+const maxSuiteDays = 366
+
 // ReadSuite reads and checks a scenario suite.
 func ReadSuite(r io.Reader) (*Suite, error) {
 	dec := json.NewDecoder(r)
@@ -45,11 +51,11 @@ func ReadSuite(r io.Reader) (*Suite, error) {
 	if err := dec.Decode(&s); err != nil {
 		return nil, fmt.Errorf("backtest: scenario suite: %w", err)
 	}
-	if s.HistoryDays[0] < 1 || s.HistoryDays[1] < s.HistoryDays[0] {
-		return nil, fmt.Errorf("backtest: scenario suite: history_days %v: want 1 ≤ low ≤ high", s.HistoryDays)
+	if s.HistoryDays[0] < 1 || s.HistoryDays[1] < s.HistoryDays[0] || s.HistoryDays[1] > maxSuiteDays {
+		return nil, fmt.Errorf("backtest: scenario suite: history_days %v: want 1 ≤ low ≤ high ≤ %d", s.HistoryDays, maxSuiteDays)
 	}
-	if s.EvalDays[0] < 1 || s.EvalDays[1] < s.EvalDays[0] {
-		return nil, fmt.Errorf("backtest: scenario suite: eval_days %v: want 1 ≤ low ≤ high", s.EvalDays)
+	if s.EvalDays[0] < 1 || s.EvalDays[1] < s.EvalDays[0] || s.EvalDays[1] > maxSuiteDays {
+		return nil, fmt.Errorf("backtest: scenario suite: eval_days %v: want 1 ≤ low ≤ high ≤ %d", s.EvalDays, maxSuiteDays)
 	}
 	if len(s.Families) == 0 {
 		return nil, errors.New("backtest: scenario suite: no families")
