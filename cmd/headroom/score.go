@@ -73,8 +73,8 @@ func runScore(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	case suite > 0 && len(paths) > 0:
 		fmt.Fprintln(stderr, "replay --score takes a PATH or --suite, not both")
 		return errUsage
-	case suite < 0:
-		fmt.Fprintln(stderr, "--suite must be positive")
+	case suite < 0 || suite > backtest.MaxVariants:
+		fmt.Fprintf(stderr, "--suite must be between 1 and %d\n", backtest.MaxVariants)
 		return errUsage
 	case suite == 0 && len(paths) != 1:
 		fmt.Fprintln(stderr, "replay --score needs one PATH (a CSV file or a folder), or --suite N")

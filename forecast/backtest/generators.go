@@ -91,7 +91,7 @@ func genFlatThenFill(sc *scene) {
 	lvl, sd, rate, thr := d.p("level"), d.p("noise"), d.p("outliers"), d.p("threshold")
 	ts := int(d.p("fill_start_days") * 1440)
 	tc := float64(sc.eval) + d.p("cross_at")*float64(sc.n-sc.eval)
-	slope := (thr - lvl) / (tc - float64(ts))
+	slope := (thr - lvl) / max(tc-float64(ts), 1) // a fill that starts at the crossing takes a minute
 	for i := range sc.n {
 		y := lvl
 		if i > ts {

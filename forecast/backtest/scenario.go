@@ -43,6 +43,39 @@ type Family struct {
 // the minutes of a series, (history + eval) × 1440, from overflowing.
 const maxSuiteDays = 366
 
+// MaxVariants bounds the variants of a family: a thousand minutes of
+// evaluation each, more would take days.
+const MaxVariants = 10_000
+
+// paramBounds returns the values a parameter may take: beyond them a
+// generator would divide by zero, loop for ages or allocate without end.
+// Amounts not listed are only kept finite.
+func paramBounds(name string) [2]float64 {
+	switch name {
+	case "noise", "jitter":
+		return [2]float64{0, 10}
+	case "outliers":
+		return [2]float64{0, 1}
+	case "cross_at":
+		return [2]float64{0, 1}
+	case "clean_at", "change_at", "spike_at", "dip_at", "anomaly_at", "reset_at":
+		return [2]float64{-1, 1}
+	case "harmonic":
+		return [2]float64{0, 1}
+	case "steps":
+		return [2]float64{1, 100}
+	case "spike_points", "ramp_minutes":
+		return [2]float64{0, 1440}
+	case "dip_minutes":
+		return [2]float64{0, 7 * 1440}
+	case "decay_minutes":
+		return [2]float64{1, 7 * 1440}
+	case "fill_start_days", "margin_days":
+		return [2]float64{0, maxSuiteDays}
+	}
+	return [2]float64{-1e12, 1e12}
+}
+
 // ReadSuite reads and checks a scenario suite.
 func ReadSuite(r io.Reader) (*Suite, error) {
 	dec := json.NewDecoder(r)
@@ -79,14 +112,17 @@ func ReadSuite(r io.Reader) (*Suite, error) {
 			if math.IsNaN(r[0]) || math.IsNaN(r[1]) || r[1] < r[0] {
 				return nil, fmt.Errorf("backtest: family %s: parameter %q: range %v is not [low, high]", f.Name, p, r)
 			}
+			if b := paramBounds(p); r[0] < b[0] || r[1] > b[1] {
+				return nil, fmt.Errorf("backtest: family %s: parameter %q: range %v outside [%g, %g]", f.Name, p, r, b[0], b[1])
+			}
 		}
 		for p := range f.Params {
 			if !g.has(p) {
 				return nil, fmt.Errorf("backtest: family %s: unknown parameter %q for kind %s", f.Name, p, f.Kind)
 			}
 		}
-		if f.Variants < 0 {
-			return nil, fmt.Errorf("backtest: family %s: negative variants", f.Name)
+		if f.Variants < 0 || f.Variants > MaxVariants {
+			return nil, fmt.Errorf("backtest: family %s: variants %d outside [0, %d]", f.Name, f.Variants, MaxVariants)
 		}
 	}
 	return &s, nil

@@ -107,6 +107,12 @@ func TestReadSuiteErrors(t *testing.T) {
 		{"missing param", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","params":{"level":[0,1]}}]}`, "missing"},
 		{"reversed range", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","params":{"level":[1,0],"noise":[0,1],"outliers":[0,0],"margin_sd":[6,7]}}]}`, "range"},
 		{"extra param", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","params":{"level":[0,1],"noise":[0,1],"outliers":[0,0],"margin_sd":[6,7],"tilt":[0,1]}}]}`, "unknown parameter"},
+		{"too many days", `{"history_days":[6,400],"eval_days":[1,2],"families":[]}`, "history_days"},
+		{"outliers beyond 1", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","params":{"level":[0,1],"noise":[0,1],"outliers":[0,2],"margin_sd":[6,7]}}]}`, "outside"},
+		{"infinite level", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","params":{"level":[0,1e300],"noise":[0,1],"outliers":[0,0],"margin_sd":[6,7]}}]}`, "outside"},
+		{"negative harmonic", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"daily_cycle","params":{"level":[1,2],"noise":[0,1],"outliers":[0,0],"amplitude":[0,1],"harmonic":[-1,0],"margin":[0,1]}}]}`, "outside"},
+		{"endless steps", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"steps","params":{"level":[1,2],"noise":[0,1],"outliers":[0,0],"steps":[3,1e300],"step":[0,1],"ramp_minutes":[5,6],"change_at":[0.1,0.2],"margin_steps":[1,2]}}]}`, "outside"},
+		{"too many variants", `{"history_days":[6,7],"eval_days":[1,2],"families":[{"name":"a","kind":"noisy_flat","variants":1000000,"params":{"level":[0,1],"noise":[0,1],"outliers":[0,0],"margin_sd":[6,7]}}]}`, "variants"},
 	} {
 		_, err := ReadSuite(strings.NewReader(c.in))
 		if err == nil || !strings.Contains(err.Error(), c.want) {
