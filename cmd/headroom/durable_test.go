@@ -196,18 +196,33 @@ func TestServeKilled(t *testing.T) {
 	}
 
 	// Each breach event of the uninterrupted run is in the events stream,
-	// once, the same.
+	// once, the same, and the newest forecast record of each series there
+	// is the uninterrupted run's newest.
 	cons, err := js.OrderedConsumer(context.Background(), stream.DefaultEventsStream, jetstream.OrderedConsumerConfig{
-		FilterSubjects: []string{stream.Subjects{}.AllBreaches()},
+		FilterSubjects: []string{stream.Subjects{}.AllBreaches(), stream.Subjects{}.AllForecasts()},
 	})
 	if err != nil {
 		t.Fatal(err)
 	}
 	stored := map[string]int{}
+	newest := map[string]stream.ForecastRecord{}
+	it, err := cons.Messages()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer it.Stop()
 	for {
-		m, err := cons.Next(jetstream.FetchMaxWait(time.Second))
+		m, err := it.Next(jetstream.NextMaxWait(time.Second))
 		if err != nil {
 			break
+		}
+		if strings.HasPrefix(m.Subject(), "headroom.forecast.") {
+			var f stream.ForecastRecord
+			if err := json.Unmarshal(m.Data(), &f); err != nil {
+				t.Fatal(err)
+			}
+			newest[f.Series] = f
+			continue
 		}
 		var e stream.BreachRecord
 		if err := json.Unmarshal(m.Data(), &e); err != nil {
@@ -225,6 +240,14 @@ func TestServeKilled(t *testing.T) {
 	}
 	if len(stored) != len(ref.byID) || len(stored) < 3 {
 		t.Errorf("%d breach events stored, uninterrupted run %d", len(stored), len(ref.byID))
+	}
+	if len(newest) != len(ref.newest) {
+		t.Errorf("forecasts of %d series stored, uninterrupted run %d", len(newest), len(ref.newest))
+	}
+	for k, want := range ref.newest {
+		if got := newest[k]; !reflect.DeepEqual(got, want) {
+			t.Errorf("%s: newest stored forecast differs:\n got %+v\nwant %+v", k, got, want)
+		}
 	}
 }
 
@@ -265,13 +288,23 @@ func grepLog(log, what string) string {
 	return strings.Join(out, "\n")
 }
 
-// breaches keeps the breach events of a run by id.
+// breaches keeps the breach events of a run by id, and its newest
+// forecast record of each series.
 type breaches struct {
-	byID map[string]stream.BreachRecord
+	byID   map[string]stream.BreachRecord
+	newest map[string]stream.ForecastRecord
 }
 
-func (b *breaches) Forecast(*stream.ForecastRecord) {}
-func (b *breaches) Reject(*stream.RejectRecord)     {}
+func (b *breaches) Forecast(r *stream.ForecastRecord) {
+	if b.newest == nil {
+		b.newest = map[string]stream.ForecastRecord{}
+	}
+	c := *r
+	c.Points = append([]stream.ForecastPoint(nil), r.Points...)
+	b.newest[r.Series] = c
+}
+
+func (b *breaches) Reject(*stream.RejectRecord) {}
 func (b *breaches) Breach(r *stream.BreachRecord) {
 	if b.byID == nil {
 		b.byID = map[string]stream.BreachRecord{}
