@@ -19,17 +19,20 @@ import (
 // due during the run. The batches are stored before the clock starts, so
 // this is the rate at which a restarted sidecar catches up. As in
 // BenchmarkIngest, "ingest" evaluates each series once per data hour and
-// "eval5m" every 5 minutes of data time.
+// "eval5m" every 5 minutes of data time; "eval5m-publish" also publishes
+// its forecast records through JetStream into the events stream, as
+// serve --durable does.
 func BenchmarkDurableIngest(b *testing.B) {
 	for _, c := range []struct {
-		name  string
-		every time.Duration
-	}{{"ingest", time.Hour}, {"eval5m", 5 * time.Minute}} {
-		b.Run(c.name, func(b *testing.B) { benchDurable(b, c.every) })
+		name    string
+		every   time.Duration
+		publish bool
+	}{{"ingest", time.Hour, false}, {"eval5m", 5 * time.Minute, false}, {"eval5m-publish", 5 * time.Minute, true}} {
+		b.Run(c.name, func(b *testing.B) { benchDurable(b, c.every, c.publish) })
 	}
 }
 
-func benchDurable(b *testing.B, every time.Duration) {
+func benchDurable(b *testing.B, every time.Duration, publish bool) {
 	const nSeries = 10_000
 	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: -1, DataDir: b.TempDir(), Log: zerolog.Nop()})
 	if err != nil {
@@ -61,13 +64,28 @@ func benchDurable(b *testing.B, every time.Duration) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	p, err := stream.NewProcessor(store, &records{}, stream.Config{Every: every, Limits: stream.Limits{MaxFuture: -1, MaxPast: -1}})
+	var (
+		emit   stream.Emitter = &records{}
+		pub    *stream.Publisher
+		events *stream.EventsStream
+	)
+	if publish {
+		pub = stream.NewPublisher(nc, stream.Subjects{}, stream.Msgpack, zerolog.Nop())
+		if err := pub.UseJetStream(4096); err != nil {
+			b.Fatal(err)
+		}
+		emit, events = pub, &stream.EventsStream{}
+	}
+	p, err := stream.NewProcessor(store, emit, stream.Config{Every: every, Limits: stream.Limits{MaxFuture: -1, MaxPast: -1}})
 	if err != nil {
 		b.Fatal(err)
 	}
 	rctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	d := &stream.Durable{Conn: nc, Processor: p, Snapshots: stream.DirSnapshots{Dir: b.TempDir()}, Every: time.Hour, Log: zerolog.Nop()}
+	if publish {
+		d.Publisher, d.Events = pub, events
+	}
 	done := make(chan error, 1)
 	b.ResetTimer()
 	t0 := time.Now()
@@ -75,9 +93,17 @@ func benchDurable(b *testing.B, every time.Duration) {
 	for d.Applied() < uint64(b.N) {
 		time.Sleep(100 * time.Microsecond)
 	}
+	if pub != nil {
+		if err := pub.Settle(ctx); err != nil {
+			b.Fatal(err)
+		}
+	}
 	el := time.Since(t0)
 	b.StopTimer()
 	b.ReportMetric(float64(b.N)*128/el.Seconds(), "points/s")
+	if pub != nil {
+		b.ReportMetric(float64(p.Stats().Forecasts)/el.Seconds(), "records/s")
+	}
 	cancel()
 	if err := <-done; err != nil {
 		b.Fatal(err)
