@@ -7,10 +7,8 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
-	"net/url"
 	"reflect"
 	"sort"
-	"strconv"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -410,41 +408,22 @@ func TestDurableServerRestart(t *testing.T) {
 	msgs := durableInput()
 	refStore, ref := reference(t, msgs)
 	dataDir := t.TempDir()
-	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: -1, DataDir: dataDir, Log: zerolog.Nop()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	u, err := url.Parse(emb.URL())
-	if err != nil {
-		t.Fatal(err)
-	}
-	port, _ := strconv.Atoi(u.Port())
+	emb, port := startOnFreePort(t, dataDir)
 	run := startDurable(t, emb.URL(), stream.DirSnapshots{Dir: t.TempDir()})
-	publishSeq := func(addr string, msgs [][]byte) {
-		t.Helper()
-		nc, err := nats.Connect(addr)
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer nc.Close()
-		js, err := jetstream.New(nc)
-		if err != nil {
-			t.Fatal(err)
-		}
-		publishJS(t, js, msgs)
-	}
 	half := len(msgs) / 2
-	publishSeq(emb.URL(), msgs[:half])
+	_, js := connectJS(t, emb.URL())
+	publishJS(t, js, msgs[:half])
 	if !waitFor(t, 30*time.Second, func() bool { return run.d.Applied() == uint64(half) }) {
 		t.Fatalf("applied %d of %d before the restart", run.d.Applied(), half)
 	}
 	emb.Shutdown()
-	emb, err = stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: port, DataDir: dataDir, Log: zerolog.Nop()})
+	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: port, DataDir: dataDir, Log: zerolog.Nop()})
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer emb.Shutdown()
-	publishSeq(emb.URL(), msgs[half:])
+	// The same connection, reconnected.
+	publishJS(t, js, msgs[half:])
 	if !waitFor(t, 30*time.Second, func() bool { return run.d.Applied() == uint64(len(msgs)) }) {
 		t.Fatalf("applied %d of %d after the restart", run.d.Applied(), len(msgs))
 	}

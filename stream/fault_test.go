@@ -36,6 +36,28 @@ func (s *syncBuffer) String() string {
 	return s.b.String()
 }
 
+// startOnFreePort starts an embedded server (with JetStream in dataDir
+// unless it is empty) on a free loopback port and returns it with the
+// port, for tests that start another one on the same port.
+func startOnFreePort(t testing.TB, dataDir string) (*stream.Embedded, int) {
+	t.Helper()
+	emb, err := stream.StartEmbedded(context.Background(), stream.EmbeddedConfig{Port: -1, DataDir: dataDir, Log: zerolog.Nop()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	u, err := url.Parse(emb.URL())
+	if err != nil {
+		emb.Shutdown()
+		t.Fatal(err)
+	}
+	port, err := strconv.Atoi(u.Port())
+	if err != nil {
+		emb.Shutdown()
+		t.Fatal(err)
+	}
+	return emb, port
+}
+
 // TestServerRestart stops the NATS server under a running sidecar and
 // starts a new one on the same port: the sidecar logs the loss and the
 // reconnection, keeps its state, and goes on forecasting from the points
@@ -43,15 +65,7 @@ func (s *syncBuffer) String() string {
 // minute).
 func TestServerRestart(t *testing.T) {
 	ctx := context.Background()
-	emb, err := stream.StartEmbedded(ctx, stream.EmbeddedConfig{Port: -1, Log: zerolog.Nop()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	u, err := url.Parse(emb.URL())
-	if err != nil {
-		t.Fatal(err)
-	}
-	port, _ := strconv.Atoi(u.Port())
+	emb, port := startOnFreePort(t, "")
 
 	var logs syncBuffer
 	nc, err := stream.Dial{URL: emb.URL(), Log: zerolog.New(&logs)}.Connect(ctx)

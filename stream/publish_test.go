@@ -2,8 +2,6 @@ package stream_test
 
 import (
 	"context"
-	"net/url"
-	"strconv"
 	"sync/atomic"
 	"testing"
 	"time"
@@ -20,15 +18,7 @@ import (
 // arrive.
 func TestPublisherBuffer(t *testing.T) {
 	ctx := context.Background()
-	emb, err := stream.StartEmbedded(ctx, stream.EmbeddedConfig{Port: -1, Log: zerolog.Nop()})
-	if err != nil {
-		t.Fatal(err)
-	}
-	u, err := url.Parse(emb.URL())
-	if err != nil {
-		t.Fatal(err)
-	}
-	port, _ := strconv.Atoi(u.Port())
+	emb, port := startOnFreePort(t, "")
 	// A small buffer stands for the 64 MiB one Dial sets.
 	nc, err := nats.Connect(emb.URL(), nats.MaxReconnects(-1), nats.ReconnectWait(50*time.Millisecond), nats.ReconnectBufSize(16<<10))
 	if err != nil {

@@ -29,7 +29,14 @@ func jsServer(t *testing.T) (*stream.Embedded, *nats.Conn, jetstream.JetStream) 
 		t.Fatal(err)
 	}
 	t.Cleanup(emb.Shutdown)
-	nc, err := nats.Connect(emb.URL())
+	nc, js := connectJS(t, emb.URL())
+	return emb, nc, js
+}
+
+// connectJS connects to url, closing the connection when the test ends.
+func connectJS(t testing.TB, url string, opts ...nats.Option) (*nats.Conn, jetstream.JetStream) {
+	t.Helper()
+	nc, err := nats.Connect(url, opts...)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -38,7 +45,7 @@ func jsServer(t *testing.T) (*stream.Embedded, *nats.Conn, jetstream.JetStream) 
 	if err != nil {
 		t.Fatal(err)
 	}
-	return emb, nc, js
+	return nc, js
 }
 
 func TestSnapshots(t *testing.T) {

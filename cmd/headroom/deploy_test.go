@@ -11,7 +11,6 @@ import (
 
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
-	"github.com/nats-io/nats.go/jetstream"
 	"github.com/rs/zerolog"
 
 	"github.com/headroom-dev/headroom/stream"
@@ -101,26 +100,8 @@ func TestDeployServerConfig(t *testing.T) {
 		t.Errorf("no breach event reached the consumer: %s", log.String())
 	}
 	// The sidecar's own user can see its consumer; stop once all is applied.
-	nc, err := nats.Connect(url, nats.UserInfo("headroom", "sidecar-pw"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer nc.Close()
-	js, err := jetstream.New(nc)
-	if err != nil {
-		t.Fatal(err)
-	}
-	applied := func() uint64 {
-		c, err := js.Consumer(context.Background(), stream.DefaultPointsStream, "headroom")
-		if err != nil {
-			return 0
-		}
-		info, err := c.Info(context.Background())
-		if err != nil {
-			return 0
-		}
-		return info.AckFloor.Stream
-	}
+	js := connectJS(t, url, nats.UserInfo("headroom", "sidecar-pw"))
+	applied := func() uint64 { return ackFloor(js) }
 	if !waitUntil(20*time.Second, func() bool { return applied() == 120 }) {
 		t.Errorf("applied %d of 120 messages", applied())
 	}
@@ -138,7 +119,7 @@ func TestDeployServerConfig(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	snaps, err := sc.snapshots(context.Background(), nc)
+	snaps, err := sc.snapshots(context.Background(), js.Conn())
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -111,26 +111,8 @@ func TestServeKilled(t *testing.T) {
 	}
 	defer emb.Shutdown()
 	args = append(args, "--nats", emb.URL())
-	nc, err := nats.Connect(emb.URL())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer nc.Close()
-	js, err := jetstream.New(nc)
-	if err != nil {
-		t.Fatal(err)
-	}
-	acked := func() uint64 {
-		c, err := js.Consumer(context.Background(), stream.DefaultPointsStream, "headroom")
-		if err != nil {
-			return 0
-		}
-		info, err := c.Info(context.Background())
-		if err != nil {
-			return 0
-		}
-		return info.AckFloor.Stream
-	}
+	js := connectJS(t, emb.URL())
+	acked := func() uint64 { return ackFloor(js) }
 	send := func(msgs [][]byte) {
 		for _, m := range msgs {
 			if _, err := js.Publish(context.Background(), "headroom.points.fleet", m); err != nil {
@@ -249,6 +231,36 @@ func TestServeKilled(t *testing.T) {
 			t.Errorf("%s: newest stored forecast differs:\n got %+v\nwant %+v", k, got, want)
 		}
 	}
+}
+
+// connectJS connects to url, closing the connection when the test ends.
+func connectJS(t *testing.T, url string, opts ...nats.Option) jetstream.JetStream {
+	t.Helper()
+	nc, err := nats.Connect(url, opts...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(nc.Close)
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return js
+}
+
+// ackFloor returns the last stream sequence the sidecar's durable
+// consumer has acknowledged, which it does once the points are applied,
+// or 0 before there is one.
+func ackFloor(js jetstream.JetStream) uint64 {
+	c, err := js.Consumer(context.Background(), stream.DefaultPointsStream, stream.DefaultConsumer)
+	if err != nil {
+		return 0
+	}
+	info, err := c.Info(context.Background())
+	if err != nil {
+		return 0
+	}
+	return info.AckFloor.Stream
 }
 
 // startServe starts the test binary as `headroom serve args` and waits
