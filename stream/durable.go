@@ -123,12 +123,10 @@ func (d *Durable) Run(ctx context.Context) error {
 		d.Ready()
 	}
 
-	cp := d.From
-	cp.Stream, cp.Created = info.Config.Name, info.Created
-	cp.Rules = d.Processor.RuleNames()
-	if cp.Seq < start-1 {
-		cp.Seq = start - 1
-	}
+	// The state now stands just before start: after the snapshot's
+	// sequence, or, past a gap or on a stream made anew, where this
+	// stream's messages begin.
+	cp := Checkpoint{Stream: info.Config.Name, Created: info.Created, Seq: start - 1, Rules: d.Processor.RuleNames()}
 	d.last.Store(cp.Seq)
 	w := d.Processor.NewWorker()
 	every := d.Every

@@ -438,3 +438,63 @@ func TestDurableServerRestart(t *testing.T) {
 		}
 	}
 }
+
+// TestDurableStreamChanged restarts a durable sidecar after its points
+// stream lost messages it had not applied (a purge: they are skipped, and
+// the state is that of the messages it did get) or was deleted and made
+// anew (its sequences start over, and every message of the new stream is
+// applied on top of the snapshot).
+func TestDurableStreamChanged(t *testing.T) {
+	msgs := durableInput()
+	for _, tt := range []struct {
+		name    string
+		change  func(t *testing.T, js jetstream.JetStream)
+		applied [][]byte // what the restarted sidecar ends having applied
+		lastSeq uint64
+	}{
+		{"purged", func(t *testing.T, js jetstream.JetStream) {
+			publishJS(t, js, msgs[100:120])
+			s, err := js.Stream(context.Background(), stream.DefaultPointsStream)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := s.Purge(context.Background()); err != nil {
+				t.Fatal(err)
+			}
+		}, append(append([][]byte{}, msgs[:100]...), msgs[120:150]...), 150},
+		{"made anew", func(t *testing.T, js jetstream.JetStream) {
+			if err := js.DeleteStream(context.Background(), stream.DefaultPointsStream); err != nil {
+				t.Fatal(err)
+			}
+		}, append(append([][]byte{}, msgs[:100]...), msgs[120:150]...), 30},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			emb, _, js := jsServer(t)
+			snaps := stream.DirSnapshots{Dir: t.TempDir()}
+			a := startDurable(t, emb.URL(), snaps)
+			publishJS(t, js, msgs[:100])
+			if !waitFor(t, 30*time.Second, func() bool { return a.d.Applied() == 100 }) {
+				t.Fatalf("applied %d of 100", a.d.Applied())
+			}
+			a.cancel()
+			if err := <-a.done; err != nil {
+				t.Fatal(err)
+			}
+			tt.change(t, js)
+			b := startDurable(t, emb.URL(), snaps)
+			if b.d.From.Seq != 100 {
+				t.Fatalf("restored at sequence %d, want 100", b.d.From.Seq)
+			}
+			publishJS(t, js, msgs[120:150])
+			if !waitFor(t, 30*time.Second, func() bool { return b.d.Applied() == tt.lastSeq }) {
+				t.Fatalf("applied up to %d, want %d", b.d.Applied(), tt.lastSeq)
+			}
+			b.cancel()
+			if err := <-b.done; err != nil {
+				t.Fatal(err)
+			}
+			refStore, _ := reference(t, tt.applied)
+			compareStores(t, refStore, b.d.Processor.Store())
+		})
+	}
+}
