@@ -56,7 +56,16 @@ func (d DirSnapshots) Save(ctx context.Context, write func(io.Writer) error) err
 	if err := os.MkdirAll(d.Dir, 0o750); err != nil {
 		return fmt.Errorf("stream: snapshot directory: %w", err)
 	}
-	f, err := os.CreateTemp(d.Dir, ".snapshot-*")
+	// A process killed while writing leaves its temporary file behind,
+	// as large as a snapshot; there is one writer per name, so any such
+	// file is stale.
+	tmpPattern := "." + filepath.Base(d.path()) + "-*"
+	if stale, err := filepath.Glob(filepath.Join(d.Dir, tmpPattern)); err == nil {
+		for _, name := range stale {
+			_ = os.Remove(name)
+		}
+	}
+	f, err := os.CreateTemp(d.Dir, tmpPattern)
 	if err != nil {
 		return fmt.Errorf("stream: snapshot: %w", err)
 	}

@@ -109,7 +109,23 @@ func TestSnapshots(t *testing.T) {
 			}
 		})
 	}
-	// No temporary file is left behind by the failed save.
+	// No temporary file is left behind by the failed save, nor by a
+	// process killed while writing: the next save removes it.
+	stale := filepath.Join(dir, ".node-a.snapshot-123456")
+	if err := os.WriteFile(stale, []byte("half a snapshot"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	other := filepath.Join(dir, ".node-b.snapshot-1") // another sidecar's, being written
+	if err := os.WriteFile(other, nil, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	d := stream.DirSnapshots{Dir: dir, Name: "node-a"}
+	if err := d.Save(context.Background(), func(w io.Writer) error { _, err := w.Write([]byte("fourth")); return err }); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Remove(other); err != nil {
+		t.Errorf("another name's temporary file: %v", err)
+	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		t.Fatal(err)
