@@ -143,7 +143,53 @@ func OpenBucketSnapshots(ctx context.Context, js jetstream.JetStream, bucket, na
 	if err != nil {
 		return BucketSnapshots{}, fmt.Errorf("stream: snapshot bucket %s: %w", bucket, err)
 	}
-	return BucketSnapshots{Store: st, Bucket: bucket, Name: name}, nil
+	b := BucketSnapshots{Store: st, Bucket: bucket, Name: name}
+	if err := b.sweep(ctx, js, staleUpload); err != nil {
+		return BucketSnapshots{}, err
+	}
+	return b, nil
+}
+
+// staleUpload is how long after its last chunk an upload without an
+// object counts as abandoned: uploads take seconds.
+const staleUpload = 10 * time.Minute
+
+// sweep removes the chunks of uploads that never completed, which a
+// process killed while uploading leaves in the bucket's stream, each as
+// large as a snapshot. It relies on the object store's layout, chunks of
+// object n under $O.<bucket>.C.<n's NUID>, and runs at start. Another
+// sidecar sharing the bucket may be uploading, so only chunks last
+// written more than age ago go.
+func (b BucketSnapshots) sweep(ctx context.Context, js jetstream.JetStream, age time.Duration) error {
+	keep := map[string]bool{}
+	infos, err := b.Store.List(ctx)
+	if err != nil && !errors.Is(err, jetstream.ErrNoObjectsFound) {
+		return fmt.Errorf("stream: snapshot bucket %s: %w", b.Bucket, err)
+	}
+	for _, info := range infos {
+		keep["$O."+b.Bucket+".C."+info.NUID] = true
+	}
+	s, err := js.Stream(ctx, "OBJ_"+b.Bucket)
+	if err != nil {
+		return fmt.Errorf("stream: snapshot bucket %s: %w", b.Bucket, err)
+	}
+	info, err := s.Info(ctx, jetstream.WithSubjectFilter("$O."+b.Bucket+".C.>"))
+	if err != nil {
+		return fmt.Errorf("stream: snapshot bucket %s: %w", b.Bucket, err)
+	}
+	for subj := range info.State.Subjects {
+		if keep[subj] {
+			continue
+		}
+		last, err := s.GetLastMsgForSubject(ctx, subj)
+		if err != nil || time.Since(last.Time) < age {
+			continue
+		}
+		if err := s.Purge(ctx, jetstream.WithPurgeSubject(subj)); err != nil {
+			return fmt.Errorf("stream: snapshot bucket %s: removing an unfinished upload: %w", b.Bucket, err)
+		}
+	}
+	return nil
 }
 
 func (b BucketSnapshots) name() string {
