@@ -538,3 +538,62 @@ func BenchmarkAddIdleExpiry(b *testing.B) {
 		})
 	}
 }
+
+// ExpireAll removes in one call every idle series, wherever earlier
+// sweeps stopped and however the slots are laid out: two stores with the
+// same series, one of them with holes left by deletions, lose the same
+// ones.
+func TestExpireAll(t *testing.T) {
+	build := func(holes bool) *Store {
+		s := newStore(t, Config{Layout: smallLayout, Partitions: 4, IdleExpiry: time.Hour})
+		for i := range 5_000 {
+			if holes && i%3 == 0 {
+				mustAdd(t, s, testKey(fmt.Sprint("gone", i)), t0, 1)
+			}
+			ts := t0 + int64(i%7)*hour // every seventh series is newest
+			mustAdd(t, s, testKey(fmt.Sprint("s", i)), ts, 1)
+		}
+		if holes {
+			for i := 0; i < 5_000; i += 3 {
+				s.Delete(testKey(fmt.Sprint("gone", i)))
+			}
+			s.Expire(math.MaxInt64) // leaves the cursor part of the way
+		}
+		return s
+	}
+	if n := build(false).ExpireAll(math.MinInt64); n != 0 {
+		t.Errorf("a reference before every point removed %d", n)
+	}
+	a, b := build(false), build(true)
+	// Newest is t0+6h, so with an hour's expiry the series whose clock is
+	// before t0+5h go: i%7 < 5.
+	want := countBelow(5_000, 7, 5)
+	if n := a.ExpireAll(math.MaxInt64); n != want {
+		t.Errorf("removed %d, want %d", n, want)
+	}
+	b.ExpireAll(math.MaxInt64)
+	for i := range 5_000 {
+		k := testKey(fmt.Sprint("s", i))
+		if ina, inb := a.Do(k, func(*Series) {}), b.Do(k, func(*Series) {}); ina != inb || ina != (i%7 >= 5) {
+			t.Fatalf("series %d: kept %v and %v", i, ina, inb)
+		}
+	}
+	if a.Len() != b.Len() {
+		t.Errorf("%d and %d series left", a.Len(), b.Len())
+	}
+	// now caps the reference: at t0+5h the cutoff is t0+4h, so i%7 < 4 go.
+	if n := build(false).ExpireAll(t0 + 5*hour); n != countBelow(5_000, 7, 4) {
+		t.Errorf("capped at t0+5h: removed %d, want %d", n, countBelow(5_000, 7, 4))
+	}
+}
+
+// countBelow counts the i in [0, n) with i%mod < below.
+func countBelow(n, mod, below int) int {
+	c := 0
+	for i := range n {
+		if i%mod < below {
+			c++
+		}
+	}
+	return c
+}

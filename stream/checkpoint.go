@@ -25,6 +25,10 @@ type Checkpoint struct {
 	Created time.Time `json:"created"`
 	Seq     uint64    `json:"seq"`   // last stream sequence applied
 	Rules   []string  `json:"rules"` // rule names by index, as incidents refer to them
+	// Swept is the storage time of the last idle sweep, in units of the
+	// sweep cadence (see Durable.Sweep), so that a replay sweeps where
+	// the first run did.
+	Swept   int64     `json:"swept"`
 	Written time.Time `json:"written"`
 }
 

@@ -42,8 +42,9 @@ type Durable struct {
 	// Every is the snapshot cadence; default one minute. Snapshots come
 	// no closer than fifty times the time the last one took.
 	Every time.Duration
-	// Sweep is how often idle series are expired; 0 never. The sweep runs
-	// between messages, like the snapshots.
+	// Sweep is how often idle series are expired, in the times the
+	// server stored the messages at; 0 never. The sweep runs between
+	// messages, like the snapshots.
 	Sweep time.Duration
 	// Publisher, if set, is settled before each snapshot, so that every
 	// record of the state a snapshot covers has been stored; with
@@ -126,14 +127,16 @@ func (d *Durable) Run(ctx context.Context) error {
 	// The state now stands just before start: after the snapshot's
 	// sequence, or, past a gap or on a stream made anew, where this
 	// stream's messages begin.
-	cp := Checkpoint{Stream: info.Config.Name, Created: info.Created, Seq: start - 1, Rules: d.Processor.RuleNames()}
+	cp := Checkpoint{Stream: info.Config.Name, Created: info.Created, Seq: start - 1, Rules: d.Processor.RuleNames(), Swept: d.From.Swept}
 	d.last.Store(cp.Seq)
 	w := d.Processor.NewWorker()
 	every := d.Every
 	if every <= 0 {
 		every = time.Minute
 	}
-	nextSnap, nextSweep := time.Now().Add(every), time.Now().Add(d.Sweep)
+	nextSnap := time.Now().Add(every)
+	sweep := max(d.Sweep.Milliseconds(), 1)
+	store := d.Processor.Store()
 	dirty := false
 	for {
 		if ctx.Err() != nil {
@@ -155,6 +158,16 @@ func (d *Durable) Run(ctx context.Context) error {
 				cp.Seq = seq
 				d.last.Store(seq)
 				dirty = true
+				// Idle series are swept once per Sweep of the times the
+				// server stored the messages at, not of the wall clock, and
+				// over the whole store: a replay sweeps after the same
+				// messages with the same reference, and forgets the same
+				// series. The storage time also caps the reference, as the
+				// wall clock does in Store.Expire.
+				if at := meta.Timestamp.UnixMilli(); d.Sweep > 0 && at/sweep != cp.Swept {
+					cp.Swept = at / sweep
+					d.expired.Add(uint64(store.ExpireAll(at)))
+				}
 			}
 			// The acknowledgement only moves the consumer; recovery goes
 			// by the snapshot's sequence, so one lost here costs nothing.
@@ -168,11 +181,6 @@ func (d *Durable) Run(ctx context.Context) error {
 			d.Log.Warn().Err(err).Msg("consuming")
 		}
 		now := time.Now()
-		if d.Sweep > 0 && now.After(nextSweep) {
-			// The wall clock caps the reference, as in Store.Expire.
-			d.expired.Add(uint64(d.Processor.Store().Expire(now.UnixMilli())))
-			nextSweep = now.Add(d.Sweep)
-		}
 		if dirty && now.After(nextSnap) && ctx.Err() == nil {
 			// A snapshot begun is finished, even if ctx ends meanwhile.
 			// One that fails (a full disk, an unreachable object store) is

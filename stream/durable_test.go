@@ -8,6 +8,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"reflect"
+	"slices"
 	"sort"
 	"sync"
 	"sync/atomic"
@@ -173,15 +174,22 @@ type durableRun struct {
 
 func startDurable(t *testing.T, url string, snaps stream.Snapshots) *durableRun {
 	t.Helper()
+	return startDurableWith(t, url, snaps, durableStore, nil)
+}
+
+// startDurableWith is startDurable with a store configured by scfg and
+// tune, if not nil, applied to the Durable before it runs.
+func startDurableWith(t *testing.T, url string, snaps stream.Snapshots, scfg state.Config, tune func(*stream.Durable)) *durableRun {
+	t.Helper()
 	ctx := context.Background()
 	nc, err := stream.Dial{URL: url, Log: zerolog.Nop()}.Connect(ctx)
 	if err != nil {
 		t.Fatal(err)
 	}
 	t.Cleanup(nc.Close)
-	store, cp := stream.LoadState(ctx, snaps, durableStore, zerolog.Nop())
+	store, cp := stream.LoadState(ctx, snaps, scfg, zerolog.Nop())
 	if store == nil {
-		if store, err = state.New(durableStore); err != nil {
+		if store, err = state.New(scfg); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -199,6 +207,9 @@ func startDurable(t *testing.T, url string, snaps stream.Snapshots) *durableRun 
 	d := &stream.Durable{
 		Conn: nc, Processor: p, Snapshots: snaps, From: cp, Every: 20 * time.Millisecond,
 		Publisher: pub, Events: &stream.EventsStream{}, Ready: func() { close(ready) }, Log: zerolog.Nop(),
+	}
+	if tune != nil {
+		tune(d)
 	}
 	rctx, cancel := context.WithCancel(ctx)
 	run := &durableRun{d: d, nc: nc, rec: rec, cancel: cancel, done: make(chan error, 1)}
@@ -497,4 +508,78 @@ func TestDurableStreamChanged(t *testing.T) {
 			compareStores(t, refStore, b.d.Processor.Store())
 		})
 	}
+}
+
+// TestDurableCrashExpiry is TestDurableCrash with idle expiry: one series
+// falls silent for ten hours, longer than the six-hour expiry, and comes
+// back. Sweeps go by the times the server stored the messages, so the
+// restarted sidecar forgets it after the same messages as a sidecar that
+// read the same stream without stopping, and the two end alike.
+func TestDurableCrashExpiry(t *testing.T) {
+	var msgs [][]byte
+	for i, m := range durableInput() {
+		// Messages are ten minutes apart: h03 is silent from hour 10 to 20.
+		if h := i / 6; h >= 10 && h < 20 {
+			var pts []wirePoint
+			if err := json.Unmarshal(m, &pts); err != nil {
+				t.Fatal(err)
+			}
+			pts = slices.DeleteFunc(pts, func(p wirePoint) bool { return p.Labels["host"] == "h03" })
+			b, err := json.Marshal(pts)
+			if err != nil {
+				t.Fatal(err)
+			}
+			m = b
+		}
+		msgs = append(msgs, m)
+	}
+	scfg := durableStore
+	scfg.IdleExpiry = 6 * time.Hour
+	sweepOften := func(d *stream.Durable) { d.Sweep = time.Millisecond }
+
+	emb, _, js := jsServer(t)
+	snaps := &frozen{Snapshots: stream.DirSnapshots{Dir: t.TempDir()}}
+	a := startDurableWith(t, emb.URL(), snaps, scfg, sweepOften)
+	cut, freeze := len(msgs)*6/10, uint64(len(msgs)*3/10)
+	publishJS(t, js, msgs[:cut])
+	if !waitFor(t, 30*time.Second, func() bool { return a.d.Applied() >= freeze && snaps.saved.Load() > 0 }) {
+		t.Fatalf("first life applied %d", a.d.Applied())
+	}
+	snaps.stop.Store(true)
+	if !waitFor(t, 30*time.Second, func() bool { return a.d.Applied() == uint64(cut) }) {
+		t.Fatalf("first life applied %d of %d", a.d.Applied(), cut)
+	}
+	a.nc.Close()
+	a.cancel()
+	<-a.done
+	snaps.stop.Store(false)
+
+	b := startDurableWith(t, emb.URL(), snaps, scfg, sweepOften)
+	publishJS(t, js, msgs[cut:])
+	if !waitFor(t, 30*time.Second, func() bool { return b.d.Applied() == uint64(len(msgs)) }) {
+		t.Fatalf("second life applied %d of %d", b.d.Applied(), len(msgs))
+	}
+	b.cancel()
+	if err := <-b.done; err != nil {
+		t.Fatal(err)
+	}
+	if a.d.Expired()+b.d.Expired() == 0 {
+		t.Fatal("no series expired: the scenario does not test expiry")
+	}
+
+	// The uninterrupted run reads the same stream, with the same storage
+	// times, through a consumer of its own.
+	ref := startDurableWith(t, emb.URL(), stream.DirSnapshots{Dir: t.TempDir()}, scfg, func(d *stream.Durable) {
+		sweepOften(d)
+		d.Consumer = "reference"
+	})
+	if !waitFor(t, 30*time.Second, func() bool { return ref.d.Applied() == uint64(len(msgs)) }) {
+		t.Fatalf("reference applied %d of %d", ref.d.Applied(), len(msgs))
+	}
+	ref.cancel()
+	if err := <-ref.done; err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("snapshot at %d, crash at %d; expired %d+%d, reference %d", b.d.From.Seq, cut, a.d.Expired(), b.d.Expired(), ref.d.Expired())
+	compareStores(t, ref.d.Processor.Store(), b.d.Processor.Store())
 }
