@@ -110,7 +110,10 @@ func (s *Store) newest() int64 {
 // ones, as Delete does, and one that receives a point again starts
 // afresh. Expire is safe for concurrent use; concurrent calls sweep one
 // after the other.
-func (s *Store) Expire(now int64) int {
+func (s *Store) Expire(now int64) int { return s.expire(now, false) }
+
+// expire is Expire, or with all set ExpireAll.
+func (s *Store) expire(now int64, all bool) int {
 	e := &s.exp
 	if e.after == 0 {
 		return 0
@@ -123,6 +126,12 @@ func (s *Store) Expire(now int64) int {
 	}
 	cutoff := ref - e.after // cannot overflow: |ref| ≤ 2^53 and after < 2^44
 	budget := max(sweepMin, s.Len()/sweepShare)
+	if all {
+		// One whole pass from the first slot, which leaves the cursor
+		// there for the next call.
+		e.part, e.chunk, e.row = 0, 0, 0
+		budget = math.MaxInt
+	}
 	removed := 0
 	// A lock counts as a slot, so that a store of empty partitions costs
 	// no more than a full one; one pass at most per call.
@@ -205,27 +214,4 @@ func (s *Store) drop(p *partition, ref int32) {
 // series. Durable ingest relies on that to replay exactly. It still holds
 // a partition lock for at most 256 slots at a time, and costs about 15 ns
 // per slot.
-func (s *Store) ExpireAll(now int64) int {
-	e := &s.exp
-	if e.after == 0 {
-		return 0
-	}
-	e.mu.Lock()
-	defer e.mu.Unlock()
-	ref := min(now, s.newest())
-	if ref < -maxAbsTime {
-		return 0
-	}
-	cutoff := ref - e.after
-	e.part, e.chunk, e.row = 0, 0, 0
-	removed := 0
-	for e.part < len(s.parts) {
-		_, n, end := s.sweep(&s.parts[e.part], cutoff, sweepStep)
-		removed += n
-		if end {
-			e.part, e.chunk, e.row = e.part+1, 0, 0
-		}
-	}
-	e.part = 0
-	return removed
-}
+func (s *Store) ExpireAll(now int64) int { return s.expire(now, true) }
